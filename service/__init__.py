@@ -1,0 +1,47 @@
+"""emf-assess HTTP service: a Flask adapter around the field engine in ``models``.
+
+WSGI entry point: ``service:create_app()`` (gunicorn: ``deploy/gunicorn.conf.py``).
+Nothing happens at import time; all configuration is read inside :func:`create_app`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+from flask import Flask
+
+
+def create_app(config: Mapping[str, Any] | None = None) -> Flask:
+    """Build the application.
+
+    Configuration: :data:`service.config.DEFAULTS`, then ``EMF_*`` environment
+    variables, then ``config`` (keys with or without the ``EMF_`` prefix).
+
+    :param config: overrides, e.g. ``{"TESTING": True, "DATABASE_URL": "sqlite://"}``.
+    :raise ValueError: on a setting the service cannot run with.
+    """
+    from . import config as settings
+    from . import errors, storage
+
+    app = Flask(__name__, instance_relative_config=True)
+    app.config.from_mapping(settings.DEFAULTS)
+    app.config.from_prefixed_env(settings.ENV_PREFIX)
+    if config:
+        app.config.from_mapping(settings.strip_prefix(config))
+    settings.check(app.config)
+    app.logger.setLevel(str(app.config["LOG_LEVEL"]).upper())
+    app.json.sort_keys = False  # reports keep the order they were built in
+
+    errors.init_app(app)
+    storage.init_app(app)
+    _register_blueprints(app)
+    return app
+
+
+def _register_blueprints(app: Flask) -> None:
+    """Every blueprint of the service; add new areas here, one line each."""
+    from . import api
+
+    app.register_blueprint(api.bp)
+    # Reports and audit (service/report_views.py) register their blueprint below.

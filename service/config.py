@@ -1,0 +1,77 @@
+"""Configuration defaults and their documentation.
+
+Order of precedence (highest last), applied by :func:`service.create_app`:
+
+1. :data:`DEFAULTS` below;
+2. environment variables with the prefix ``EMF_`` (``EMF_DATABASE_URL`` sets
+   ``DATABASE_URL``), read with Flask's ``from_prefixed_env`` so values are
+   JSON-parsed (``EMF_MAX_POINTS=5001`` becomes the integer 5001);
+3. the mapping passed to ``create_app`` (tests); its keys may be given with or
+   without the ``EMF_`` prefix.
+
+Nothing here reads the environment at import time.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+ENV_PREFIX = "EMF"
+
+DEFAULTS: dict[str, Any] = {
+    # SQLAlchemy URL; None means a SQLite file ``emf-assess.sqlite3`` in the
+    # Flask instance folder (created on demand).
+    "DATABASE_URL": None,
+    # Largest accepted request body [bytes]; larger bodies get 413.
+    "MAX_CONTENT_LENGTH": 2 * 1024 * 1024,
+    # Largest number of evaluation points per request (profile or explicit points).
+    "MAX_POINTS": 20_001,
+    # Largest number of conductor positions (all circuits) plus earth wires.
+    "MAX_CONDUCTORS": 64,
+    # Page size for GET /v1/assessments: default and upper bound.
+    "PAGE_SIZE_DEFAULT": 20,
+    "PAGE_SIZE_MAX": 100,
+    # Log level of the application logger (DEBUG, INFO, WARNING, ERROR).
+    "LOG_LEVEL": "INFO",
+    # Create tables at start-up (set false when the schema is managed elsewhere).
+    "CREATE_TABLES": True,
+}
+
+# Documented in README.md "Configuration"; the table there lists these names.
+ENVIRONMENT_VARIABLES: dict[str, str] = {
+    "EMF_DATABASE_URL": "SQLAlchemy database URL",
+    "EMF_MAX_CONTENT_LENGTH": "largest request body [bytes]",
+    "EMF_MAX_POINTS": "largest number of evaluation points per request",
+    "EMF_MAX_CONDUCTORS": "largest number of conductor positions plus earth wires",
+    "EMF_PAGE_SIZE_DEFAULT": "default page size of the assessment list",
+    "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
+    "EMF_LOG_LEVEL": "application log level",
+    "EMF_CREATE_TABLES": "create missing tables at start-up (true/false)",
+}
+
+
+def strip_prefix(overrides: Mapping[str, Any]) -> dict[str, Any]:
+    """Return ``overrides`` with any leading ``EMF_`` removed from the keys.
+
+    >>> strip_prefix({"EMF_DATABASE_URL": "sqlite://", "TESTING": True})
+    {'DATABASE_URL': 'sqlite://', 'TESTING': True}
+    """
+    prefix = ENV_PREFIX + "_"
+    return {(k[len(prefix):] if k.startswith(prefix) else k): v for k, v in overrides.items()}
+
+
+def check(config: Mapping[str, Any]) -> None:
+    """Fail fast on values the service cannot run with.
+
+    :raise ValueError: naming the offending setting.
+    """
+    for key in ("MAX_CONTENT_LENGTH", "MAX_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
+        value = config.get(key)
+        if not isinstance(value, int) or isinstance(value, bool) or value < 1:
+            raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")
+    if config["PAGE_SIZE_DEFAULT"] > config["PAGE_SIZE_MAX"]:
+        raise ValueError("Setting PAGE_SIZE_DEFAULT must not exceed PAGE_SIZE_MAX.")
+    url = config.get("DATABASE_URL")
+    if url is not None and not isinstance(url, str):
+        raise ValueError(f"Setting DATABASE_URL must be a string; instead received {url!r}.")

@@ -1,0 +1,397 @@
+"""Storage of assessments: typed SQLAlchemy 2.x models and query functions.
+
+* :func:`init_app` builds one engine and ``sessionmaker`` per application (so per
+  gunicorn worker) from ``DATABASE_URL``; the default is a SQLite file in the
+  Flask instance folder.  SQLite connections get WAL, a busy timeout and foreign
+  keys via a ``connect`` event.
+* The request owns the session: :func:`get_session` gives the one session of the
+  current request (closed on teardown); views wrap their work in
+  ``with session.begin():``.  Functions here take the session first and never commit.
+* Records are immutable through the API (no update/delete functions; the ORM
+  refuses flushes that would change or delete a stored record).
+
+Record chain and digest (also in DEVELOPERS.md, "Storage and digests"): each
+record stores ``digest = record_digest(request_json, report_json, prev_digest)``
+where ``prev_digest`` is the digest of the record with the previous ``sequence``
+(:data:`GENESIS_DIGEST` for the first).  The chain is global.  The head of the chain
+(one row of ``chain_head``) is claimed with an ``UPDATE`` as the first statement of
+the insert transaction, which takes a row lock on PostgreSQL and the write lock
+on SQLite, so concurrent inserts queue and the chain stays linear.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import json
+import os
+import time
+import uuid
+from collections.abc import Iterator, Mapping
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from typing import Any
+
+from flask import Flask, current_app, g
+from sqlalchemy import (
+    BigInteger,
+    CheckConstraint,
+    DateTime,
+    Engine,
+    Integer,
+    String,
+    Text,
+    TypeDecorator,
+    Uuid,
+    create_engine,
+    event,
+    func,
+    select,
+    text,
+    update,
+)
+from sqlalchemy.exc import IntegrityError, OperationalError
+from sqlalchemy.orm import DeclarativeBase, Mapped, Session, mapped_column, sessionmaker
+from sqlalchemy.pool import StaticPool
+
+GENESIS_DIGEST = "0" * 64
+"""``prev_digest`` of the first record in the chain."""
+
+EXTENSION_KEY = "emf_storage"
+SQLITE_FILENAME = "emf-assess.sqlite3"
+_PG_INIT_LOCK_KEY = 0x454D46  # "EMF": serialises table creation between workers
+
+
+class UTCDateTime(TypeDecorator[datetime]):
+    """Timezone-aware UTC datetimes on every backend (SQLite stores them naive)."""
+
+    impl = DateTime(timezone=True)
+    cache_ok = True
+
+    def process_bind_param(self, value: datetime | None, dialect: Any) -> datetime | None:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError("created_at must be timezone-aware")
+        value = value.astimezone(timezone.utc)
+        return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
+
+    def process_result_value(self, value: datetime | None, dialect: Any) -> datetime | None:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            return value.replace(tzinfo=timezone.utc)
+        return value.astimezone(timezone.utc)
+
+
+class Base(DeclarativeBase):
+    pass
+
+
+class AssessmentRecord(Base):
+    """One stored assessment: the canonical request, the report and the chain link."""
+
+    __tablename__ = "assessments"
+    __table_args__ = (CheckConstraint("outcome IN ('pass', 'fail')", name="ck_assessments_outcome"),)
+
+    id: Mapped[uuid.UUID] = mapped_column(Uuid, primary_key=True)
+    sequence: Mapped[int] = mapped_column(BigInteger().with_variant(Integer, "sqlite"), unique=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime, index=True)
+    reference: Mapped[str] = mapped_column(String(200), index=True)
+    title: Mapped[str] = mapped_column(String(200))
+    outcome: Mapped[str] = mapped_column(String(4), index=True)
+    request_json: Mapped[str] = mapped_column(Text)
+    report_json: Mapped[str] = mapped_column(Text)
+    digest: Mapped[str] = mapped_column(String(64), unique=True)
+    prev_digest: Mapped[str] = mapped_column(String(64))
+    engine_version: Mapped[str] = mapped_column(String(32))
+    catalogue_version: Mapped[str] = mapped_column(String(32))
+
+    def report(self) -> dict[str, Any]:
+        """The stored report, parsed, with ``digest`` appended (as served by the API)."""
+        body = json.loads(self.report_json)
+        body["digest"] = self.digest
+        return body
+
+
+class ChainHead(Base):
+    """Single row (id = 1) holding the sequence number and digest of the newest record."""
+
+    __tablename__ = "chain_head"
+    __table_args__ = (CheckConstraint("id = 1", name="ck_chain_head_single_row"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    sequence: Mapped[int] = mapped_column(BigInteger().with_variant(Integer, "sqlite"))
+    digest: Mapped[str] = mapped_column(String(64))
+
+
+@event.listens_for(AssessmentRecord, "before_update")
+def _refuse_update(mapper: Any, connection: Any, target: AssessmentRecord) -> None:
+    raise PermissionError("Stored assessments are immutable.")
+
+
+@event.listens_for(AssessmentRecord, "before_delete")
+def _refuse_delete(mapper: Any, connection: Any, target: AssessmentRecord) -> None:
+    raise PermissionError("Stored assessments are immutable.")
+
+
+# --------------------------------------------------------------------------- digests
+
+
+def canonical_json(obj: Any) -> str:
+    """Canonical JSON text: sorted keys, no insignificant whitespace, UTF-8 characters, no NaN.
+
+    >>> canonical_json({"b": 1.0, "a": [True, None, "µT"]})
+    '{"a":[true,null,"µT"],"b":1.0}'
+    """
+    return json.dumps(obj, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
+def report_to_json(report: Mapping[str, Any]) -> str:
+    """Stored form of a report: compact JSON, key order kept, no NaN."""
+    return json.dumps(report, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+
+
+def record_digest(canonical_request: str, report_json: str, prev_digest: str) -> str:
+    """SHA-256 digest of one record, chained to its predecessor.
+
+    ``sha256(utf8(canonical_request + "\\n" + report_json + "\\n" + prev_digest))`` as
+    64 lowercase hex digits.  ``canonical_request`` and ``report_json`` are the exact
+    stored column texts (``request_json``, ``report_json``); neither contains a raw
+    newline, so the separators are unambiguous.
+
+    >>> record_digest("{}", "{}", GENESIS_DIGEST)[:16]
+    'fc32dd59379f595f'
+    """
+    payload = canonical_request + "\n" + report_json + "\n" + prev_digest
+    return hashlib.sha256(payload.encode("utf-8")).hexdigest()
+
+
+def rfc3339(moment: datetime) -> str:
+    """UTC timestamp as RFC 3339 with microseconds and ``Z``."""
+    return moment.astimezone(timezone.utc).isoformat(timespec="microseconds").replace("+00:00", "Z")
+
+
+# --------------------------------------------------------------------------- queries
+
+
+def insert_assessment(session: Session, canonical_request: str, report: Mapping[str, Any]) -> AssessmentRecord:
+    """Append one assessment to the chain (caller commits).
+
+    Parameters
+    ----------
+    session : Session
+        Inside the caller's transaction; nothing else may have run in it, so that the
+        chain-head claim is its first statement.
+    canonical_request : str
+        The normalised request as :func:`canonical_json` text.
+    report : mapping
+        The report body without ``id``/``created_at``; must hold ``title``,
+        ``reference``, ``outcome``, ``engine_version`` and ``catalogue_version``.
+        The stored report is ``{"id", "created_at", **report}``.
+
+    Returns
+    -------
+    AssessmentRecord
+        The new record, flushed.
+    """
+    session.execute(update(ChainHead).where(ChainHead.id == 1).values(sequence=ChainHead.sequence + 1))
+    sequence, prev_digest = session.execute(
+        select(ChainHead.sequence, ChainHead.digest).where(ChainHead.id == 1)
+    ).one()
+    record_id = uuid.uuid4()
+    created_at = datetime.now(timezone.utc)
+    body = {"id": str(record_id), "created_at": rfc3339(created_at), **report}
+    report_json = report_to_json(body)
+    digest = record_digest(canonical_request, report_json, prev_digest)
+    record = AssessmentRecord(
+        id=record_id,
+        sequence=sequence,
+        created_at=created_at,
+        reference=report["reference"],
+        title=report["title"],
+        outcome=report["outcome"],
+        request_json=canonical_request,
+        report_json=report_json,
+        digest=digest,
+        prev_digest=prev_digest,
+        engine_version=report["engine_version"],
+        catalogue_version=report["catalogue_version"],
+    )
+    session.add(record)
+    session.execute(update(ChainHead).where(ChainHead.id == 1).values(digest=digest))
+    session.flush()
+    return record
+
+
+def get_assessment(session: Session, assessment_id: uuid.UUID) -> AssessmentRecord | None:
+    """The record with this id, or None."""
+    return session.get(AssessmentRecord, assessment_id)
+
+
+@dataclass(frozen=True)
+class Page:
+    """One page of records, newest first; ``next_cursor`` is None on the last page."""
+
+    records: list[AssessmentRecord]
+    next_cursor: str | None
+
+
+def encode_cursor(sequence: int) -> str:
+    """Opaque cursor meaning "records older than ``sequence``"."""
+    raw = json.dumps({"before": sequence}, separators=(",", ":")).encode()
+    return base64.urlsafe_b64encode(raw).decode().rstrip("=")
+
+
+def decode_cursor(cursor: str) -> int:
+    """Inverse of :func:`encode_cursor`.
+
+    :raise ValueError: if the cursor was not made by :func:`encode_cursor`.
+    """
+    try:
+        raw = base64.urlsafe_b64decode(cursor + "=" * (-len(cursor) % 4))
+        before = json.loads(raw)["before"]
+    except (ValueError, TypeError, KeyError) as exc:
+        raise ValueError("not a cursor issued by this service") from exc
+    if not isinstance(before, int) or isinstance(before, bool) or before < 1:
+        raise ValueError("not a cursor issued by this service")
+    return before
+
+
+def list_assessments(session: Session, *, limit: int, before_sequence: int | None = None,
+                     reference: str | None = None, outcome: str | None = None,
+                     created_after: datetime | None = None, created_before: datetime | None = None) -> Page:
+    """Records matching every given filter, newest (highest sequence) first.
+
+    ``created_after``/``created_before`` are exclusive bounds.
+    """
+    query = select(AssessmentRecord).order_by(AssessmentRecord.sequence.desc()).limit(limit + 1)
+    if before_sequence is not None:
+        query = query.where(AssessmentRecord.sequence < before_sequence)
+    if reference is not None:
+        query = query.where(AssessmentRecord.reference == reference)
+    if outcome is not None:
+        query = query.where(AssessmentRecord.outcome == outcome)
+    if created_after is not None:
+        query = query.where(AssessmentRecord.created_at > created_after)
+    if created_before is not None:
+        query = query.where(AssessmentRecord.created_at < created_before)
+    rows = list(session.scalars(query))
+    if len(rows) > limit:
+        return Page(rows[:limit], encode_cursor(rows[limit - 1].sequence))
+    return Page(rows, None)
+
+
+def count_assessments(session: Session) -> int:
+    """Number of stored records."""
+    return session.scalar(select(func.count()).select_from(AssessmentRecord)) or 0
+
+
+def iter_chain(session: Session, batch_size: int = 500) -> Iterator[AssessmentRecord]:
+    """All records in chain order (ascending ``sequence``), fetched in batches."""
+    last = 0
+    while True:
+        rows = list(session.scalars(
+            select(AssessmentRecord).where(AssessmentRecord.sequence > last)
+            .order_by(AssessmentRecord.sequence).limit(batch_size)
+        ))
+        if not rows:
+            return
+        yield from rows
+        last = rows[-1].sequence
+
+
+def chain_head(session: Session) -> tuple[int, str]:
+    """(sequence, digest) of the newest record, ``(0, GENESIS_DIGEST)`` for an empty chain."""
+    row = session.execute(select(ChainHead.sequence, ChainHead.digest).where(ChainHead.id == 1)).one()
+    return int(row[0]), row[1]
+
+
+def ping(session: Session) -> None:
+    """Round trip to the database (raises on failure)."""
+    session.execute(text("SELECT 1"))
+
+
+# --------------------------------------------------------------------------- wiring
+
+
+def database_url(app: Flask) -> str:
+    """``DATABASE_URL`` from the config, or the default SQLite file in the instance folder."""
+    url = app.config.get("DATABASE_URL")
+    if url:
+        return url
+    os.makedirs(app.instance_path, exist_ok=True)
+    return "sqlite:///" + os.path.join(app.instance_path, SQLITE_FILENAME)
+
+
+def _sqlite_pragmas(dbapi_connection: Any, connection_record: Any) -> None:
+    cursor = dbapi_connection.cursor()
+    cursor.execute("PRAGMA busy_timeout = 15000")
+    cursor.execute("PRAGMA foreign_keys = ON")
+    cursor.execute("PRAGMA journal_mode = WAL")
+    cursor.execute("PRAGMA synchronous = NORMAL")
+    cursor.close()
+
+
+def make_engine(url: str) -> Engine:
+    """Engine for ``url``; SQLite gets its pragmas, in-memory SQLite one shared connection."""
+    if url.startswith("sqlite"):
+        kwargs: dict[str, Any] = {}
+        if url in ("sqlite://", "sqlite:///:memory:", "sqlite+pysqlite://"):
+            kwargs = {"poolclass": StaticPool, "connect_args": {"check_same_thread": False}}
+        engine = create_engine(url, **kwargs)
+        event.listen(engine, "connect", _sqlite_pragmas)
+        return engine
+    return create_engine(url, pool_pre_ping=True)
+
+
+def create_schema(engine: Engine, attempts: int = 5) -> None:
+    """Create missing tables and the chain-head row; safe when several workers start together."""
+    for attempt in range(attempts):
+        try:
+            with engine.begin() as conn:
+                if conn.dialect.name == "postgresql":
+                    conn.execute(text("SELECT pg_advisory_xact_lock(:key)"), {"key": _PG_INIT_LOCK_KEY})
+                Base.metadata.create_all(conn)
+                if conn.execute(select(ChainHead.id).where(ChainHead.id == 1)).first() is None:
+                    conn.execute(ChainHead.__table__.insert().values(id=1, sequence=0, digest=GENESIS_DIGEST))
+            return
+        except (IntegrityError, OperationalError):
+            # Another worker created the same table or row between our check and our write.
+            if attempt == attempts - 1:
+                raise
+            time.sleep(0.05 * (attempt + 1))
+
+
+@dataclass
+class Storage:
+    """What :func:`init_app` keeps in ``app.extensions[EXTENSION_KEY]``."""
+
+    engine: Engine
+    sessionmaker: sessionmaker[Session]
+
+
+def init_app(app: Flask) -> None:
+    """Build the engine and session factory, create tables, close the request session on teardown."""
+    engine = make_engine(database_url(app))
+    if app.config.get("CREATE_TABLES", True):
+        create_schema(engine)
+    app.extensions[EXTENSION_KEY] = Storage(engine, sessionmaker(engine, expire_on_commit=False))
+    app.teardown_appcontext(_close_session)
+
+
+def storage_of(app: Flask) -> Storage:
+    return app.extensions[EXTENSION_KEY]
+
+
+def get_session() -> Session:
+    """The session of the current request (created on first use)."""
+    if "db_session" not in g:
+        g.db_session = storage_of(current_app).sessionmaker()
+    return g.db_session
+
+
+def _close_session(exc: BaseException | None) -> None:
+    session = g.pop("db_session", None)
+    if session is not None:
+        session.close()
