@@ -17,6 +17,18 @@ from .geometry import (
     VoltagePhasor,
 )
 from .results import FieldResult, axial_ratio, ellipse_axes, resultant_rms
+from .cross_section import evaluate_cross_section
+from .electric import electric_field_phasors, line_charges, potential_coefficients
+from .magnetic import complex_depth_m, flux_density_phasors
+from .sources import (
+    PHASE_SCHEMES,
+    build_sources,
+    bundle_radius_m,
+    circuit_phase_angles_deg,
+    equivalent_bundle_radius_m,
+    subconductor_offsets_m,
+    validate_cross_section,
+)
 
 ENGINE_VERSION = "0.1.0"
 
@@ -37,4 +49,18 @@ __all__ = [
     "axial_ratio",
     "ellipse_axes",
     "resultant_rms",
+    # cross-section engine
+    "PHASE_SCHEMES",
+    "build_sources",
+    "bundle_radius_m",
+    "circuit_phase_angles_deg",
+    "complex_depth_m",
+    "electric_field_phasors",
+    "equivalent_bundle_radius_m",
+    "evaluate_cross_section",
+    "flux_density_phasors",
+    "line_charges",
+    "potential_coefficients",
+    "subconductor_offsets_m",
+    "validate_cross_section",
 ]
