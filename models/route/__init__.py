@@ -1,0 +1,66 @@
+"""3-D route engine: supports, sagging spans, straight-segment discretisation, B and E in 3-D.
+
+Coordinates: a projected plane in metres (x east, y north, z up); see
+:mod:`models.route.types` for the ground model.
+"""
+
+from __future__ import annotations
+
+from .catenary import (
+    CatenarySpan,
+    catenary_constant_from_sag,
+    catenary_height_m,
+    conductor_length_m,
+    level_span_sag_m,
+    low_point_x_m,
+    midspan_sag_m,
+    parabolic_sag_m,
+)
+from .discretise import DEFAULT_TOLERANCE_M, discretise_route, segments_for_span
+from .geometry import (
+    StrungWire,
+    attachment_points_m,
+    deviation_angles_deg,
+    frame_at_chainage,
+    offset_vectors,
+    route_centre_line,
+    span_directions,
+    strung_wires,
+    support_chainage_m,
+    validate_route,
+)
+from .magnetic3d import flux_density_segments, warm_up
+from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
+
+__all__ = [
+    "Attachment",
+    "CatenarySpan",
+    "DEFAULT_TOLERANCE_M",
+    "Route",
+    "RouteCircuit",
+    "RouteConductor",
+    "RouteEarthWire",
+    "SegmentSet",
+    "StrungWire",
+    "Support",
+    "attachment_points_m",
+    "catenary_constant_from_sag",
+    "catenary_height_m",
+    "conductor_length_m",
+    "deviation_angles_deg",
+    "discretise_route",
+    "flux_density_segments",
+    "frame_at_chainage",
+    "level_span_sag_m",
+    "low_point_x_m",
+    "midspan_sag_m",
+    "offset_vectors",
+    "parabolic_sag_m",
+    "route_centre_line",
+    "segments_for_span",
+    "span_directions",
+    "strung_wires",
+    "support_chainage_m",
+    "validate_route",
+    "warm_up",
+]

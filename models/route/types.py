@@ -115,6 +115,17 @@ class SegmentSet:
         Radius of each wire [m] (equivalent bundle radius for E wires).
     wire_screened : bool ndarray, shape (w,)
         True for underground screened cables (no E outside).
+    wire_path : tuple of str, length w
+        Input path of each wire's conductor, e.g. ``"route.circuits[0].conductors[1]"``
+        (all subconductors of a bundle share it) or ``"route.earth_wires[0]"``.
+    span_index : int ndarray, shape (m,)
+        Span (0 = between the first two supports) each segment lies in.
+
+    Notes
+    -----
+    Built by :func:`models.route.discretise.discretise_route`.  The segments of
+    one wire are consecutive rows and form a continuous polyline from the first
+    support to the last (``end_m[i] == start_m[i + 1]`` exactly within a wire).
     """
 
     start_m: np.ndarray
@@ -124,3 +135,5 @@ class SegmentSet:
     wire_voltage_v: np.ndarray
     wire_radius_m: np.ndarray
     wire_screened: np.ndarray
+    wire_path: tuple[str, ...] = ()
+    span_index: np.ndarray | None = None
