@@ -29,6 +29,8 @@ from .geometry import (
     support_chainage_m,
     validate_route,
 )
+from .electric3d import electric_field_segments, line_charges
+from .electric3d import warm_up as warm_up_electric
 from .magnetic3d import flux_density_segments, warm_up
 from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
 
@@ -49,9 +51,11 @@ __all__ = [
     "conductor_length_m",
     "deviation_angles_deg",
     "discretise_route",
+    "electric_field_segments",
     "flux_density_segments",
     "frame_at_chainage",
     "level_span_sag_m",
+    "line_charges",
     "low_point_x_m",
     "midspan_sag_m",
     "offset_vectors",
@@ -63,4 +67,5 @@ __all__ = [
     "support_chainage_m",
     "validate_route",
     "warm_up",
+    "warm_up_electric",
 ]
