@@ -438,3 +438,25 @@ def test_file_not_json(tmp_path):
     path.write_text("{", encoding="utf-8")
     with pytest.raises(CatalogueFileError, match="not valid JSON"):
         load_catalogue(path)
+
+
+def test_readme_table_matches_the_catalogue():
+    # Drift check: the README "Reference levels" table (E kV/m, B µT at 50/60 Hz) must show the values
+    # the catalogue returns, at the README's printed precision; every catalogue id must appear.
+    readme = (DATA_FILE.parents[2] / "README.md").read_text(encoding="utf-8")
+    rows = {}
+    for line in readme.splitlines():
+        if line.startswith("| `"):
+            cells = [c.strip() for c in line.strip("|").split("|")]
+            rows[cells[0].strip("`")] = cells[2:6]
+    assert set(rows) == set(catalogue_ids())
+    for level_id, cells in rows.items():
+        for (f, quantity, unit), cell in zip([(50, "E", "kV/m"), (60, "E", "kV/m"), (50, "B", "µT"), (60, "B", "µT")], cells):
+            level = get_level(level_id)
+            if cell == "–":
+                assert level.quantity(quantity) is None, (level_id, quantity)
+            elif cell == "n/a":
+                with pytest.raises(CatalogueError):
+                    thresholds_for([level_id], f)
+            else:
+                assert limit_si(level_id, quantity, f) == printed(cell.replace(" ", ""), unit), (level_id, f, quantity)
