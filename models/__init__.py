@@ -29,6 +29,16 @@ from .sources import (
     subconductor_offsets_m,
     validate_cross_section,
 )
+from .catalogue import (
+    CATALOGUE_VERSION,
+    LevelDefinition,
+    Threshold,
+    custom_threshold,
+    levels_at,
+    list_levels,
+    thresholds_for,
+)
+from .compliance import ThresholdCompliance, evaluate_compliance, multi_frequency_exposure_index
 
 ENGINE_VERSION = "0.1.0"
 
@@ -63,4 +73,15 @@ __all__ = [
     "potential_coefficients",
     "subconductor_offsets_m",
     "validate_cross_section",
+    # reference levels and compliance
+    "CATALOGUE_VERSION",
+    "LevelDefinition",
+    "Threshold",
+    "ThresholdCompliance",
+    "custom_threshold",
+    "evaluate_compliance",
+    "levels_at",
+    "list_levels",
+    "multi_frequency_exposure_index",
+    "thresholds_for",
 ]
