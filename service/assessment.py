@@ -19,6 +19,7 @@ from models.compliance import ThresholdCompliance, evaluate_compliance
 from models.cross_section import evaluate_cross_section
 from models.errors import EngineInputError
 from models.results import FieldResult
+from models.sources import validate_cross_section
 from models.units import t_to_ut, v_per_m_to_kv_per_m
 
 from .schemas import AssessmentRequest, profile_point_count, to_plain
@@ -181,6 +182,7 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     models.errors.EngineInputError
         Physically impossible input or unknown reference level (field named).
     """
+    validate_cross_section(request.cross_section, request.frequency_hz)  # geometry and frequency first
     limits = thresholds(request)
     offsets, heights = evaluation_points(request)
     result = _evaluate(request, offsets, heights)
