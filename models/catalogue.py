@@ -62,7 +62,7 @@ __all__ = [
 Quantity = Literal["E", "B"]
 
 #: unit -> (quantity, power of ten to SI).  SI: V/m for E, T for B.
-UNIT_TO_SI: dict[str, tuple[str, int]] = {
+_UNIT_POW10: dict[str, tuple[str, int]] = {
     "V/m": ("E", 0),
     "kV/m": ("E", 3),
     "T": ("B", 0),
@@ -71,6 +71,9 @@ UNIT_TO_SI: dict[str, tuple[str, int]] = {
     "µT": ("B", -6),  # U+00B5 micro sign
     "μT": ("B", -6),  # U+03BC greek small letter mu
 }
+
+#: unit -> (quantity, factor to SI) for every accepted unit.  Convert with :func:`to_si`.
+UNIT_TO_SI: dict[str, tuple[str, float]] = {u: (q, 10.0**p) for u, (q, p) in _UNIT_POW10.items()}
 
 
 def to_si(value: float, unit: str) -> float:
@@ -84,7 +87,7 @@ def to_si(value: float, unit: str) -> float:
     >>> to_si(100, "µT") == 1e-4, to_si(0.4, "µT") == 0.4e-6, to_si(2.5, "kV/m")
     (True, True, 2500.0)
     """
-    return float(Decimal(repr(float(value))).scaleb(UNIT_TO_SI[unit][1]))
+    return float(Decimal(repr(float(value))).scaleb(_UNIT_POW10[unit][1]))
 
 SI_UNIT = {"E": "V/m", "B": "T"}
 FORMULAS = {"constant": 0, "inverse": 1, "inverse_square": 2}
