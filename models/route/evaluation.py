@@ -171,7 +171,7 @@ def stations(length_m: float, step_m: float) -> np.ndarray:
 
 
 def path_points(line_m: LineString, step_m: float, height_m: float, *, max_points: int | None = None,
-                field_prefix: str = "evaluation.path") -> tuple[np.ndarray, np.ndarray]:
+                field_prefix: str = "path") -> tuple[np.ndarray, np.ndarray]:
     """Sample a path every ``step_m`` along its length (both ends included).
 
     Parameters
@@ -218,7 +218,7 @@ def path_points(line_m: LineString, step_m: float, height_m: float, *, max_point
 
 
 def lateral_profile_points(route_m: Route, spec: LateralProfileSet, *, max_points: int | None = None,
-                           field_prefix: str = "evaluation.lateral_profile") -> tuple[np.ndarray, np.ndarray]:
+                           field_prefix: str = "lateral_profile") -> tuple[np.ndarray, np.ndarray]:
     """Points of a lateral profile across the route.
 
     Parameters
@@ -266,11 +266,11 @@ def lateral_profile_points(route_m: Route, spec: LateralProfileSet, *, max_point
     return points, offsets
 
 
-def receptor_points(x_m, y_m, height_m, *, field_prefix: str = "evaluation.receptors") -> np.ndarray:
+def receptor_points(x_m, y_m, height_m, *, field_prefix: str = "receptors.features") -> np.ndarray:
     """Receptor observation points ``(n, 3)`` [m] from plan positions and heights [m]."""
     h = np.asarray(height_m, dtype=float)
     for i, hi in enumerate(h.ravel()):
-        _height(float(hi), f"{field_prefix}[{i}].height_m")
+        _height(float(hi), f"{field_prefix}[{i}].properties.height_m")
     return np.column_stack([np.asarray(x_m, dtype=float), np.asarray(y_m, dtype=float), h])
 
 
@@ -298,7 +298,7 @@ class GridAxes:
 
 
 def grid_axes(bounds_m: tuple[float, float, float, float], resolution_m: float, height_m: float, *,
-              max_points: int | None = None, field_prefix: str = "evaluation.grid") -> GridAxes:
+              max_points: int | None = None, field_prefix: str = "grid") -> GridAxes:
     """Regular grid covering a bounding box in the working plane.
 
     Parameters

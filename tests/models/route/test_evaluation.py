@@ -57,13 +57,13 @@ def test_path_sampling_polyline():
 def test_path_rejects_zero_length_and_too_many_points():
     with pytest.raises(EngineInputError) as err:
         path_points(LineString([(1.0, 1.0), (1.0, 1.0)]), 1.0, 1.0)
-    assert err.value.field == "evaluation.path.geometry"
+    assert err.value.field == "path.geometry"
     with pytest.raises(EngineInputError) as err:
         path_points(LineString([(0.0, 0.0), (1000.0, 0.0)]), 0.01, 1.0, max_points=10_000)
-    assert err.value.field == "evaluation.path.step_m"
+    assert err.value.field == "path.step_m"
     with pytest.raises(EngineInputError) as err:
         path_points(LineString([(0.0, 0.0), (10.0, 0.0)]), 1.0, -1.0)
-    assert err.value.field == "evaluation.path.height_m"
+    assert err.value.field == "path.height_m"
 
 
 def _route(*xy):
@@ -100,10 +100,10 @@ def test_lateral_profile_chainage_outside_route_names_the_field():
     route = _route((0.0, 0.0), (300.0, 0.0))
     with pytest.raises(EngineInputError) as err:
         lateral_profile_points(route, LateralProfileSet(301.0, -10.0, 10.0, 1.0, 1.0))
-    assert err.value.field == "evaluation.lateral_profile.chainage_m"
+    assert err.value.field == "lateral_profile.chainage_m"
     with pytest.raises(EngineInputError) as err:
         lateral_profile_points(route, LateralProfileSet(10.0, 10.0, -10.0, 1.0, 1.0))
-    assert err.value.field == "evaluation.lateral_profile.to_m"
+    assert err.value.field == "lateral_profile.to_m"
 
 
 def test_grid_covers_bbox_with_spacing_at_most_resolution():
@@ -117,10 +117,10 @@ def test_grid_covers_bbox_with_spacing_at_most_resolution():
     np.testing.assert_allclose(pts[:, 1].reshape(g.shape)[2, 3], g.y_m[2])
     with pytest.raises(EngineInputError) as err:
         grid_axes((0.0, 0.0, 1000.0, 1000.0), 0.5, 1.0, max_points=100_000)
-    assert err.value.field == "evaluation.grid.resolution_m"
+    assert err.value.field == "grid.resolution_m"
     with pytest.raises(EngineInputError) as err:
         grid_axes((0.0, 0.0, -1.0, 1.0), 0.5, 1.0)
-    assert err.value.field == "evaluation.grid.bbox"
+    assert err.value.field == "grid.bbox"
 
 
 def test_receptor_heights_checked():
@@ -128,4 +128,4 @@ def test_receptor_heights_checked():
     assert pts.tolist() == [[1.0, 3.0, 1.5], [2.0, 4.0, 4.0]]
     with pytest.raises(EngineInputError) as err:
         receptor_points([1.0, 2.0], [3.0, 4.0], [1.5, float("nan")])
-    assert err.value.field == "evaluation.receptors[1].height_m"
+    assert err.value.field == "receptors.features[1].properties.height_m"
