@@ -186,6 +186,60 @@ ROWS = [
         id="uk-icnirp-1998-br-equivalent",
     ),
     pytest.param(
+        "si-uredba-1996-area-ii",
+        # Slovenia Area II: 100 µT, 10 kV/m MEMORY (check-values.md §5).
+        {(50, "E"): ("10", "kV/m"), (50, "B"): ("100", "µT"), (60, "E"): None},
+        id="si-uredba-1996-area-ii",
+    ),
+    pytest.param(
+        "no-investigation-0.4ut",
+        # Norway: investigate if B in nearby buildings can exceed "0,4 μT" SEEN (kartverket.no); 50 Hz only.
+        {(50, "B"): ("0.4", "µT"), (60, "B"): None},
+        id="no-investigation-0.4ut",
+    ),
+    pytest.param(
+        "us-fl-62-814-230kv-row-edge",
+        # Florida F.A.C. 62-814, ROW edge, <= 230 kV: "150 mG (15 µT)" SEEN (utility page); E 2 kV/m MEMORY; 60 Hz only.
+        {(60, "E"): ("2", "kV/m"), (60, "B"): ("15", "µT"), (50, "B"): None},
+        id="us-fl-62-814-230kv-row-edge",
+    ),
+    pytest.param(
+        "us-fl-62-814-500kv-row-edge",
+        # Florida, ROW edge, 500 kV: "200 mG (20 µT)" SEEN (utility page); E 2 kV/m MEMORY.
+        {(60, "E"): ("2", "kV/m"), (60, "B"): ("20", "µT"), (50, "E"): None},
+        id="us-fl-62-814-500kv-row-edge",
+    ),
+    pytest.param(
+        "us-fl-62-814-230kv-within-row",
+        # Florida, within ROW, <= 230 kV: 8 kV/m MEMORY (check-values.md §5).
+        {(60, "E"): ("8", "kV/m"), (50, "E"): None},
+        id="us-fl-62-814-230kv-within-row",
+    ),
+    pytest.param(
+        "us-fl-62-814-500kv-within-row",
+        # Florida, within ROW, 500 kV: 10 kV/m MEMORY.
+        {(60, "E"): ("10", "kV/m"), (50, "E"): None},
+        id="us-fl-62-814-500kv-within-row",
+    ),
+    pytest.param(
+        "us-ny-psc-row-edge",
+        # New York PSC interim policy: "200 mG (20 µT) at ROW edge for lines > 125 kV" SEEN (utility page).
+        {(60, "B"): ("20", "µT"), (50, "B"): None},
+        id="us-ny-psc-row-edge",
+    ),
+    pytest.param(
+        "us-mn-puc-8kv",
+        # Minnesota PUC "electric field limit of 8 kV/m" SEEN (orono.mn.us EA page).
+        {(60, "E"): ("8", "kV/m"), (50, "E"): None},
+        id="us-mn-puc-8kv",
+    ),
+    pytest.param(
+        "us-or-9kv",
+        # Oregon "9 kV/m in areas accessible to the public" SEEN (DOE EIS-0332 page).
+        {(60, "E"): ("9", "kV/m"), (50, "E"): None},
+        id="us-or-9kv",
+    ),
+    pytest.param(
         "acgih-tlv",
         # ACGIH TLV (not law): 25 kV/m; 1.2 mT at 50 Hz, 1 mT at 60 Hz whole body SEEN (check-values.md §0).
         {(50, "E"): ("25", "kV/m"), (60, "E"): ("25", "kV/m"), (50, "B"): ("1.2", "mT"), (60, "B"): ("1", "mT")},
@@ -337,9 +391,10 @@ def test_ids_must_be_a_list():
 
 def test_levels_at_lists_what_is_valid_at_the_frequency():
     at50 = levels_at(50)
-    assert {t.level_id for t in at50} == set(catalogue_ids())  # every row covers 50 Hz
     at60 = {t.level_id for t in levels_at(60)}
+    assert {t.level_id for t in at50} | at60 == set(catalogue_ids())  # every row covers 50 or 60 Hz
     assert "it-dpcm-2003-quality-objective" not in at60 and "icnirp-2010-public" in at60
+    assert "us-ny-psc-row-edge" in at60 and "us-ny-psc-row-edge" not in {t.level_id for t in at50}
     at10 = {(t.level_id, t.quantity) for t in levels_at(10)}
     assert ("ieee-c95.1-2019-unrestricted", "E") in at10
     assert ("ieee-c95.1-2019-unrestricted", "B") not in at10
