@@ -505,6 +505,7 @@ def test_readme_table_matches_the_catalogue():
             cells = [c.strip() for c in line.strip("|").split("|")]
             rows[cells[0].strip("`")] = cells[2:6]
     assert set(rows) == set(catalogue_ids())
+    assert f"(currently `{CATALOGUE_VERSION}`" in readme
     for level_id, cells in rows.items():
         for (f, quantity, unit), cell in zip([(50, "E", "kV/m"), (60, "E", "kV/m"), (50, "B", "µT"), (60, "B", "µT")], cells):
             level = get_level(level_id)

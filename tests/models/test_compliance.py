@@ -12,6 +12,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from models.catalogue import custom_threshold, thresholds_for
 from models.compliance import (
@@ -274,3 +276,68 @@ def test_repeated_offsets_use_the_largest_value():
     x = np.array([-2.0, -2.0, 0.0, 0.0, 2.0, 2.0])
     v = np.array([0.0, 0.0, 1.0, 3.0, 0.0, 1.0])
     assert compliance_distances(x, v, 1.0)[:2] == (pytest.approx(4 / 3, abs=1e-12), pytest.approx(2.0, abs=1e-12))
+
+
+# --------------------------------------------------------------------------- properties and a physical profile
+
+
+def _check_side(x, v, limit, d):
+    """Check one side (x > 0 is "this side") of the definition in compliance_distances against np.interp."""
+    if x.max() <= 0:
+        assert d is None
+        return
+    end = int(np.argmax(x))
+    if v[end] > limit:
+        assert d is None
+        return
+    assert d is not None and d >= 0
+    order = np.argsort(x)
+    xs, vs = x[order], v[order]
+    # Beyond d every sample is at or below the limit, and so is the interpolant at d.
+    assert np.all(vs[xs > d] <= limit)
+    if xs[0] <= d:
+        assert np.interp(d, xs, vs) <= limit * (1 + 1e-9)
+    if d > 0:
+        # d is a crossing: the interpolant equals the limit there and some sample inside d exceeds it.
+        assert np.interp(d, xs, vs) == pytest.approx(limit, rel=1e-9)
+        assert np.any(vs[xs < d] > limit)
+    elif xs[0] <= 0:
+        assert np.interp(0.0, xs, vs) <= limit * (1 + 1e-9)
+
+
+@settings(max_examples=150, deadline=None)
+@given(
+    st.lists(st.integers(-400, 400), min_size=1, max_size=25, unique=True),
+    st.data(),
+    st.floats(0.5, 9.5),
+)
+def test_distances_satisfy_the_definition(offsets_dm, data, limit):
+    # Property check of the docstring definition d = sup{x >= 0 : v(x) > limit} against numpy's
+    # linear interpolation (an independent implementation of the interpolant).
+    x = np.array(offsets_dm, dtype=float) / 10.0
+    v = np.array(data.draw(st.lists(st.floats(0, 10), min_size=x.size, max_size=x.size)))
+    left, right, _ = compliance_distances(x, v, limit)
+    _check_side(x, v, limit, right)
+    _check_side(-x, v, limit, left)
+
+
+def test_single_conductor_profile_crossing_from_amperes_law():
+    # Ampere's law for an infinite straight conductor: |B| = mu0 I / (2 pi r).  Conductor at 12 m height
+    # carrying 1000 A, profile at 1 m: r^2 = x^2 + 11^2, so B = L at |x| = sqrt((mu0 I / (2 pi L))^2 - 11^2).
+    # With L = 10 µT: mu0 I/(2 pi L) = 20.0 m (mu0 = 4 pi e-7, the traditional value, fine at 1e-9), |x| = 16.703 m.
+    mu0, current, dh, lim_t = 4e-7 * math.pi, 1000.0, 11.0, 10e-6
+    x = np.linspace(-60.0, 60.0, 12001)
+    r2 = x**2 + dh**2
+    b = mu0 * current / (2 * math.pi * np.sqrt(r2))
+    # Field direction perpendicular to the radius vector (single-phase phasor, real): (-(y - h), x) / r.
+    bx = mu0 * current / (2 * math.pi) * dh / r2
+    by = mu0 * current / (2 * math.pi) * x / r2
+    result = FieldResult(np.column_stack([x, np.ones_like(x)]), 50.0,
+                         np.zeros((x.size, 2), complex), np.column_stack([bx, by]).astype(complex))
+    assert np.allclose(result.b_rms_t, b, rtol=1e-12)
+    (c,) = evaluate_compliance(result, [b_limit(10)], lateral_offset_m=x)
+    expected = math.sqrt((mu0 * current / (2 * math.pi * lim_t)) ** 2 - dh**2)
+    assert c.distance_left_m == pytest.approx(expected, abs=1e-3)
+    assert c.distance_right_m == pytest.approx(expected, abs=1e-3)
+    assert c.max_value_si == pytest.approx(mu0 * current / (2 * math.pi * dh), rel=1e-12)
+    assert result.points_m[c.max_index, 0] == 0.0
