@@ -12,7 +12,7 @@ contiguous frequency pieces with a formula in **f in Hz**:
 
 A piece applies for ``f_min_hz <= f < f_max_hz``; the last piece also includes
 ``f_max_hz``; a piece with ``f_min_hz == f_max_hz`` applies at that one frequency
-(national rules written for the 50 Hz grid).  Coefficients are converted to SI on
+(national rules written for one grid frequency, 50 Hz or 60 Hz).  Coefficients are converted to SI on
 load (V/m for E, T for B).
 
 Every value carries a provenance ``status``: ``"seen"`` (read in public text; the
@@ -49,9 +49,9 @@ __all__ = [
     "LevelDefinition",
     "QuantityDefinition",
     "Threshold",
+    "catalogue_ids",
     "custom_threshold",
     "get_level",
-    "catalogue_ids",
     "levels_at",
     "list_levels",
     "load_catalogue",
@@ -503,17 +503,42 @@ def list_levels() -> list[LevelDefinition]:
 
 
 def catalogue_ids() -> list[str]:
-    """Catalogue ids, in file order."""
+    """Catalogue ids, in file order.
+
+    Returns
+    -------
+    list of str
+
+    Examples
+    --------
+    >>> catalogue_ids()[:2]
+    ['icnirp-1998-public', 'icnirp-1998-occupational']
+    """
     return [lv.id for lv in _catalogue().levels]
 
 
 def get_level(level_id: str, *, field: str = "reference_level") -> LevelDefinition:
     """One catalogue row by id.
 
+    Parameters
+    ----------
+    level_id : str
+    field : str
+        Request field named in the error.
+
+    Returns
+    -------
+    LevelDefinition
+
     Raises
     ------
     CatalogueError
         Unknown id; the message lists the valid ids (and a close match, if any).
+
+    Examples
+    --------
+    >>> get_level("eu-2013-35-high-al").population
+    'occupational'
     """
     level = _catalogue().by_id().get(level_id) if isinstance(level_id, str) else None
     if level is None:

@@ -130,9 +130,10 @@ def compliance_distances(
     * no point strictly beyond the centre line on that side: ``None``, with a note.
 
     A field exactly equal to the limit is not an exceedance.  Separate humps are
-    handled by taking the outermost crossing.  The straight-line interpolation is
-    exact only for points dense enough to resolve the profile (common practice:
-    1 m spacing or finer near the crossing).
+    handled by taking the outermost crossing.  Where the true field is monotone
+    between the two points that bracket the crossing, the true crossing lies between
+    them, so the error is at most the point spacing there; refine the profile near
+    the crossing when that matters.
 
     Examples
     --------
@@ -148,6 +149,10 @@ def compliance_distances(
         raise must_be("lateral_offset_m", "non-empty", x.size)
     if not np.all(np.isfinite(x)):
         raise must_be("lateral_offset_m", "finite", x[~np.isfinite(x)][:3].tolist())
+    if not np.all(np.isfinite(v)):
+        raise must_be("values", "finite", v[~np.isfinite(v)][:3].tolist())
+    if not (math.isfinite(limit) and limit > 0):
+        raise must_be("limit", "finite and > 0", limit)
     # Sort and merge duplicates (max per offset).
     xu, inverse = np.unique(x, return_inverse=True)
     vu = np.full(xu.shape, -np.inf)

@@ -341,3 +341,20 @@ def test_single_conductor_profile_crossing_from_amperes_law():
     assert c.distance_right_m == pytest.approx(expected, abs=1e-3)
     assert c.max_value_si == pytest.approx(mu0 * current / (2 * math.pi * dh), rel=1e-12)
     assert result.points_m[c.max_index, 0] == 0.0
+
+
+@pytest.mark.parametrize(
+    ("x", "v", "limit", "field"),
+    [
+        pytest.param([0.0, 1.0], [1.0], 1.0, "lateral_offset_m", id="length"),
+        pytest.param([], [], 1.0, "lateral_offset_m", id="empty"),
+        pytest.param([0.0, math.inf], [1.0, 1.0], 1.0, "lateral_offset_m", id="inf-offset"),
+        pytest.param([0.0, 1.0], [1.0, math.nan], 1.0, "values", id="nan-value"),
+        pytest.param([0.0, 1.0], [1.0, 1.0], 0.0, "limit", id="zero-limit"),
+        pytest.param([0.0, 1.0], [1.0, 1.0], math.nan, "limit", id="nan-limit"),
+    ],
+)
+def test_compliance_distances_input_errors(x, v, limit, field):
+    with pytest.raises(EngineInputError) as info:
+        compliance_distances(np.array(x), np.array(v), limit)
+    assert info.value.field == field
