@@ -8,14 +8,17 @@ stays bounded for very many points.
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 
-from .electric import electric_field_phasors, line_charges
+from .electric import line_charges
 from .errors import GeometryError, must_be
 from .geometry import CrossSection
-from .magnetic import complex_depth_m, flux_density_phasors
+from .magnetic import complex_depth_m, earth_return_phasors
 from .results import FieldResult
 from .sources import Sources, build_sources, validate_cross_section, validate_soil_resistivity
+from .units import EPS0_F_PER_M, MU0_H_PER_M
 
 
 def _assumptions(section: CrossSection, sources: Sources, frequency_hz: float,
@@ -59,11 +62,10 @@ def _observation_points(offset_m, height_m) -> np.ndarray:
     return np.column_stack([ox.ravel(), oy.ravel()])
 
 
-def _check_points(points: np.ndarray, start: int, sources: Sources) -> None:
-    """Reject non-finite points, points below ground and points inside a wire."""
-    bad = ~np.isfinite(points).all(axis=1)
-    if bad.any():
-        i = int(np.argmax(bad))
+def _check_points(points: np.ndarray, start: int) -> None:
+    """Reject non-finite points and points below ground (inside-a-wire: in the fused kernel)."""
+    if not np.isfinite(points).all():
+        i = int(np.argmax(~np.isfinite(points).all(axis=1)))
         raise must_be(f"points[{start + i}]", "finite (offset_m, height_m)", tuple(points[i].tolist()),
                       GeometryError)
     below = points[:, 1] < 0.0
@@ -71,12 +73,73 @@ def _check_points(points: np.ndarray, start: int, sources: Sources) -> None:
         i = int(np.argmax(below))
         raise must_be(f"points[{start + i}]", "at or above ground (height_m >= 0)",
                       tuple(points[i].tolist()), GeometryError)
-    for xk, yk, rk, name in zip(sources.x_m, sources.y_m, sources.radius_m, sources.fields):
-        inside = (points[:, 0] - xk) ** 2 + (points[:, 1] - yk) ** 2 < rk * rk
-        if inside.any():
-            i = int(np.argmax(inside))
-            raise must_be(f"points[{start + i}]", f"outside the conductors (this point lies inside {name})",
-                          tuple(points[i].tolist()), GeometryError)
+
+
+@functools.cache
+def _fused_kernel():
+    """Compile (or load from numba's on-disk cache) the fused E + B + inside-check loop.
+
+    One pass over (point, wire) pairs shares the distances between the electric and
+    magnetic sums.  The formulas are those of
+    :func:`models.electric.electric_field_phasors` (line charge plus ground image)
+    and :func:`models.magnetic.flux_density_phasors` (2-D Biot–Savart); the tests
+    check this path against those kernels and against external references.
+    Serial (``nogil``, no ``parallel``): safe to call from several threads at once.
+    Returns the index of the first point strictly inside a wire (and the wire), or -1.
+    """
+    import numba
+
+    @numba.njit(cache=True, nogil=True)
+    def fields(ox, oy, cx, cy, radius, q_re, q_im, i_re, i_im, e_out, b_out):
+        ke = 1.0 / (2.0 * np.pi * EPS0_F_PER_M)
+        kb = MU0_H_PER_M / (2.0 * np.pi)
+        for p in range(ox.size):
+            x = ox[p]
+            y = oy[p]
+            exr = 0.0
+            exi = 0.0
+            eyr = 0.0
+            eyi = 0.0
+            bxr = 0.0
+            bxi = 0.0
+            byr = 0.0
+            byi = 0.0
+            for k in range(cx.size):
+                dx = x - cx[k]
+                dy = y - cy[k]
+                dx2 = dx * dx
+                r2 = dx2 + dy * dy
+                if r2 < radius[k] * radius[k]:
+                    return p, k
+                if q_re[k] != 0.0 or q_im[k] != 0.0:
+                    dyi = y + cy[k]            # E: charge at (x_k, y_k), image -q at (x_k, -y_k)
+                    r2i = dx2 + dyi * dyi
+                    w = 1.0 / (r2 * r2i)       # one division for both reciprocals
+                    inv = r2i * w
+                    inv_i = r2 * w
+                else:
+                    inv = 1.0 / r2
+                    inv_i = 0.0
+                gx = dy * inv                  # B: (-dy, dx) / r^2 times I
+                gy = dx * inv
+                bxr -= i_re[k] * gx
+                bxi -= i_im[k] * gx
+                byr += i_re[k] * gy
+                byi += i_im[k] * gy
+                if inv_i != 0.0:
+                    fx = dx * (inv - inv_i)
+                    fy = gx - dyi * inv_i
+                    exr += q_re[k] * fx
+                    exi += q_im[k] * fx
+                    eyr += q_re[k] * fy
+                    eyi += q_im[k] * fy
+            e_out[p, 0] = complex(ke * exr, ke * exi)
+            e_out[p, 1] = complex(ke * eyr, ke * eyi)
+            b_out[p, 0] = complex(kb * bxr, kb * bxi)
+            b_out[p, 1] = complex(kb * byr, kb * byi)
+        return -1, -1
+
+    return fields
 
 
 def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_hz: float, *,
@@ -146,23 +209,30 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
     points = _observation_points(offset_m, height_m)
 
     oh = sources.overhead          # E system: overhead wires only (screened cables give no E)
-    charges = line_charges(sources.x_m[oh], sources.y_m[oh], sources.radius_m[oh], sources.voltage_v[oh])
+    charges = np.zeros(sources.x_m.size, dtype=complex)
+    charges[oh] = line_charges(sources.x_m[oh], sources.y_m[oh], sources.radius_m[oh], sources.voltage_v[oh])
     p = None if rho is None else complex_depth_m(rho, frequency_hz)
+    wires = (sources.x_m, sources.y_m, sources.radius_m, np.ascontiguousarray(charges.real),
+             np.ascontiguousarray(charges.imag), np.ascontiguousarray(sources.current_a.real),
+             np.ascontiguousarray(sources.current_a.imag))
 
     n = points.shape[0]
     e_out = np.empty((n, 2), dtype=complex)
     b_out = np.empty((n, 2), dtype=complex)
+    kernel = _fused_kernel()
     for start in range(0, n, int(chunk_size)):
-        block = points[start:start + int(chunk_size)]
-        _check_points(block, start, sources)
-        ox, oy = block[:, 0], block[:, 1]
-        e_out[start:start + block.shape[0]] = electric_field_phasors(
-            ox, oy, sources.x_m[oh], sources.y_m[oh], charges)
-        b = flux_density_phasors(ox, oy, sources.x_m[oh], sources.y_m[oh], sources.current_a[oh],
-                                 complex_depth_m=p)
-        if not oh.all():
-            b += flux_density_phasors(ox, oy, sources.x_m[~oh], sources.y_m[~oh], sources.current_a[~oh])
-        b_out[start:start + block.shape[0]] = b
+        stop = min(start + int(chunk_size), n)
+        block = points[start:stop]
+        _check_points(block, start)
+        ox, oy = np.ascontiguousarray(block[:, 0]), np.ascontiguousarray(block[:, 1])
+        i, k = kernel(ox, oy, *wires, e_out[start:stop], b_out[start:stop])
+        if i >= 0:
+            raise must_be(f"points[{start + i}]",
+                          f"outside the conductors (this point lies inside {sources.fields[k]})",
+                          tuple(block[i].tolist()), GeometryError)
+        if p is not None:
+            b_out[start:stop] += earth_return_phasors(ox, oy, sources.x_m[oh], sources.y_m[oh],
+                                                      sources.current_a[oh], p)
     return FieldResult(
         points_m=points,
         frequency_hz=frequency_hz,

@@ -9,6 +9,7 @@ do no input checks.  Coordinates: x = offset, y = height above ground (y > 0).
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -122,34 +123,52 @@ def electric_field_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
     >>> round(float(e[0, 1].real), 3), float(e[0, 0].real)   # -2 q / (2 pi eps0 h), 0
     (-3595.021, 0.0)
     """
-    ox = np.asarray(obs_x_m, dtype=float).ravel()
-    oy = np.asarray(obs_y_m, dtype=float).ravel()
-    cx = np.asarray(cond_x_m, dtype=float).ravel()
-    cy = np.asarray(cond_y_m, dtype=float).ravel()
-    q = np.asarray(charge_c_per_m, dtype=complex).ravel() / (2.0 * math.pi * EPS0_F_PER_M)
-    ex_re = np.zeros(ox.size)
-    ex_im = np.zeros(ox.size)
-    ey_re = np.zeros(ox.size)
-    ey_im = np.zeros(ox.size)
-    for xk, yk, qk in zip(cx, cy, q):
-        if qk == 0:
-            continue
-        dx = ox - xk
-        dy = oy - yk
-        dyi = oy + yk
-        dx2 = dx * dx
-        inv = dx2 + dy * dy
-        np.divide(1.0, inv, out=inv)
-        inv_i = dx2 + dyi * dyi
-        np.divide(1.0, inv_i, out=inv_i)
-        gx = dx * (inv - inv_i)
-        gy = dy * inv
-        gy -= dyi * inv_i
-        ex_re += qk.real * gx
-        ex_im += qk.imag * gx
-        ey_re += qk.real * gy
-        ey_im += qk.imag * gy
-    e = np.empty((ox.size, 2), dtype=complex)
-    e[:, 0] = ex_re + 1j * ex_im
-    e[:, 1] = ey_re + 1j * ey_im
-    return e
+    ox = np.ascontiguousarray(obs_x_m, dtype=float).ravel()
+    oy = np.ascontiguousarray(obs_y_m, dtype=float).ravel()
+    cx = np.ascontiguousarray(cond_x_m, dtype=float).ravel()
+    cy = np.ascontiguousarray(cond_y_m, dtype=float).ravel()
+    q = np.ascontiguousarray(charge_c_per_m, dtype=complex).ravel()
+    out = np.zeros((ox.size, 2), dtype=complex)
+    if cx.size == 0 or ox.size == 0:
+        return out
+    _kernel()(ox, oy, cx, cy, np.ascontiguousarray(q.real), np.ascontiguousarray(q.imag), out)
+    out *= 1.0 / (2.0 * math.pi * EPS0_F_PER_M)
+    return out
+
+
+@functools.cache
+def _kernel():
+    """Compile (or load from numba's on-disk cache) the point-by-wire loop.
+
+    Serial (``nogil``, no ``parallel``): safe to call from several threads at once.
+    """
+    import numba
+
+    @numba.njit(cache=True, nogil=True)
+    def field(ox, oy, cx, cy, q_re, q_im, out):
+        for p in range(ox.size):
+            x = ox[p]
+            y = oy[p]
+            exr = 0.0
+            exi = 0.0
+            eyr = 0.0
+            eyi = 0.0
+            for k in range(cx.size):
+                dx = x - cx[k]
+                dy = y - cy[k]
+                dyi = y + cy[k]
+                dx2 = dx * dx
+                inv = 1.0 / (dx2 + dy * dy)
+                inv_i = 1.0 / (dx2 + dyi * dyi)
+                # charge q at (x_k, y_k) and image -q at (x_k, -y_k); real geometry,
+                # so real and imaginary parts are accumulated as floats
+                gx = dx * (inv - inv_i)
+                gy = dy * inv - dyi * inv_i
+                exr += q_re[k] * gx
+                exi += q_im[k] * gx
+                eyr += q_re[k] * gy
+                eyi += q_im[k] * gy
+            out[p, 0] = complex(exr, exi)
+            out[p, 1] = complex(eyr, eyi)
+
+    return field

@@ -252,7 +252,7 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
                 voltage = 0j
             else:
                 voltage = _phasor(v_phase, angle)
-            for dx, dy in rel:
+            for dx, dy in rel.tolist():
                 xs.append(conductor.offset_m + dx)
                 ys.append(conductor.height_m + dy)
                 rs.append(r_sub)

@@ -163,3 +163,31 @@ def test_point_on_a_wire_surface_is_accepted():
     # the surface itself is outside the conductor: the surface field is a legitimate result
     res = evaluate_cross_section(flat_line(), 7.2 + 0.0143, 14.0, 50.0)
     assert np.isfinite(res.e_phasor_v_per_m).all() and np.isfinite(res.b_phasor_t).all()
+
+
+def test_fused_path_matches_the_separate_kernels():
+    # The orchestrator evaluates E, B and the inside check in one fused loop; it must agree
+    # with the per-quantity kernels (each checked against closed forms, Gauss, Ampère and
+    # magpylib in test_electric.py / test_magnetic.py).  Mixed section: overhead line, earth
+    # wires, and an underground cable (B only, no E, excluded from the charge system).
+    from models.electric import electric_field_phasors, line_charges
+    from models.magnetic import complex_depth_m, flux_density_phasors
+    from models.sources import build_sources
+
+    line = flat_line()
+    cable = Circuit("cable", "underground", 132.0, 650.0,
+                    tuple(Conductor(p, 20.0 + x, -1.0) for p, x in zip(("L1", "L2", "L3"), (-0.2, 0.0, 0.2))),
+                    Bundle(0.05))
+    section = CrossSection(line.circuits + (cable,), line.earth_wires)
+    x, y = np.meshgrid(np.linspace(-40, 40, 17), [0.0, 1.0, 5.0, 30.0])
+    res = evaluate_cross_section(section, x, y, 50.0, soil_resistivity_ohm_m=300.0, chunk_size=13)
+    src = build_sources(section)
+    oh = src.overhead
+    assert (~oh).sum() == 3
+    q = line_charges(src.x_m[oh], src.y_m[oh], src.radius_m[oh], src.voltage_v[oh])
+    e = electric_field_phasors(x, y, src.x_m[oh], src.y_m[oh], q)
+    b = (flux_density_phasors(x, y, src.x_m[oh], src.y_m[oh], src.current_a[oh],
+                              complex_depth_m=complex_depth_m(300.0, 50.0))
+         + flux_density_phasors(x, y, src.x_m[~oh], src.y_m[~oh], src.current_a[~oh]))
+    np.testing.assert_allclose(res.e_phasor_v_per_m, e, rtol=1e-12, atol=1e-12 * np.abs(e).max())
+    np.testing.assert_allclose(res.b_phasor_t, b, rtol=1e-12, atol=1e-12 * np.abs(b).max())
