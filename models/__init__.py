@@ -17,9 +17,9 @@ from .geometry import (
     VoltagePhasor,
 )
 from .results import FieldResult, axial_ratio, ellipse_axes, resultant_rms
-from .cross_section import evaluate_cross_section
+from .cross_section import compile_kernels, evaluate_cross_section
 from .electric import electric_field_phasors, line_charges, potential_coefficients
-from .magnetic import complex_depth_m, flux_density_phasors
+from .magnetic import complex_depth_m, earth_return_phasors, flux_density_phasors
 from .sources import (
     PHASE_SCHEMES,
     build_sources,
@@ -27,6 +27,7 @@ from .sources import (
     circuit_phase_angles_deg,
     equivalent_bundle_radius_m,
     subconductor_offsets_m,
+    validate_circuit,
     validate_cross_section,
 )
 from .catalogue import (
@@ -64,7 +65,9 @@ __all__ = [
     "build_sources",
     "bundle_radius_m",
     "circuit_phase_angles_deg",
+    "compile_kernels",
     "complex_depth_m",
+    "earth_return_phasors",
     "electric_field_phasors",
     "equivalent_bundle_radius_m",
     "evaluate_cross_section",
@@ -72,6 +75,7 @@ __all__ = [
     "line_charges",
     "potential_coefficients",
     "subconductor_offsets_m",
+    "validate_circuit",
     "validate_cross_section",
     # reference levels and compliance
     "CATALOGUE_VERSION",

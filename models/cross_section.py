@@ -240,3 +240,23 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
         b_phasor_t=b_out,
         assumptions=_assumptions(section, sources, frequency_hz, rho),
     )
+
+
+def compile_kernels() -> None:
+    """Compile (or load from numba's on-disk cache) every cross-section kernel now.
+
+    The first evaluation in a process otherwise pays the compilation (a few seconds
+    without a cache).  Call it once at start-up, e.g. in the service's app factory.
+
+    Examples
+    --------
+    >>> compile_kernels()
+    """
+    from .geometry import Bundle, Circuit, Conductor
+    from .magnetic import flux_density_phasors
+    from .electric import electric_field_phasors
+
+    section = CrossSection((Circuit("warm-up", "overhead", 1.0, 1.0, (Conductor("L1", 0.0, 10.0),), Bundle(0.02)),))
+    evaluate_cross_section(section, [0.0], [1.0], 50.0, soil_resistivity_ohm_m=100.0)
+    flux_density_phasors([0.0], [1.0], [0.0], [10.0], [1.0])
+    electric_field_phasors([0.0], [1.0], [0.0], [10.0], [1e-9])
