@@ -41,7 +41,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
 def _register_blueprints(app: Flask) -> None:
     """Every blueprint of the service; add new areas here, one line each."""
-    from . import api
+    from . import api, report_views
 
     app.register_blueprint(api.bp)
     # Reports and audit (service/report_views.py) register their blueprint below.
+    app.register_blueprint(report_views.bp)

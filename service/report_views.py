@@ -1,0 +1,211 @@
+"""Routes for reports, exports and audit (blueprint ``reports``; thin views).
+
+* ``GET /v1/assessments/{id}/report`` -- content negotiation on ``Accept``:
+  ``application/json`` (the stored report), ``text/html`` (printable page),
+  ``text/csv`` (one row per point); ``?format=json|html|csv`` overrides ``Accept``.
+  Anything else: 406 problem.
+* ``GET /v1/assessments/{id}/geojson`` -- ``application/geo+json`` for route
+  assessments; a cross-section assessment has no map geometry: 404 problem of type
+  :data:`NO_GEOMETRY` (the resource does not exist for it).
+* ``POST /v1/assessments/{id}/verify`` -- recompute with the current engine and
+  catalogue, compare within :data:`service.audit.RTOL`/``ATOL``, check the digest.
+  Read-only: the record is never changed.
+* ``GET /v1/audit/verify-chain`` -- walk the global record chain, report the first break.
+"""
+
+from __future__ import annotations
+
+import json
+import threading
+import uuid
+from collections import OrderedDict
+from datetime import datetime, timezone
+from typing import Any
+
+from flask import Blueprint, Response, current_app, jsonify, request, url_for
+from werkzeug.exceptions import NotAcceptable, NotFound
+
+from . import audit, reports, storage
+from .errors import INVALID_PARAMETER, ProblemError
+
+bp = Blueprint("reports", __name__)
+
+NO_GEOMETRY = "urn:emf-assess:problem:no-geometry"
+
+REPORT_RENDERER_VERSION = "1"
+"""Bumped when the HTML/CSV/GeoJSON rendering changes (part of the ETag)."""
+
+FORMATS = {"json": "application/json", "html": reports.HTML_MIME, "csv": reports.CSV_MIME}
+
+# Self-contained page: no scripts, no external loads; styles are inline.
+HTML_CSP = "default-src 'none'; style-src 'unsafe-inline'; img-src data:; base-uri 'none'; form-action 'none'"
+
+
+def _record(assessment_id: uuid.UUID) -> storage.AssessmentRecord:
+    session = storage.get_session()
+    with session.begin():
+        record = storage.get_assessment(session, assessment_id)
+    if record is None:
+        raise NotFound(f"No assessment with id {assessment_id}.")
+    return record
+
+
+def _negotiate() -> str:
+    fmt = request.args.get("format")
+    if fmt is not None:
+        if fmt not in FORMATS:
+            raise ProblemError(400, f"format must be one of {', '.join(FORMATS)}; instead received {fmt!r}.",
+                               type_=INVALID_PARAMETER, title="Invalid query parameter",
+                               errors=[{"parameter": "format", "detail": f"Must be one of {', '.join(FORMATS)}."}])
+        return FORMATS[fmt]
+    if not request.headers.get("Accept"):
+        return "application/json"  # no Accept header: any type is acceptable (RFC 9110, 12.5.1)
+    best = request.accept_mimetypes.best_match(list(FORMATS.values()))
+    if best is None:
+        raise NotAcceptable("This report is available as application/json, text/html or text/csv "
+                            "(or choose with ?format=json|html|csv).")
+    return best
+
+
+class _RenderCache:
+    """Rendered HTML/CSV by (record digest, format): stored records never change, so neither do their pages."""
+
+    def __init__(self, size: int = 32):
+        self.size, self._items, self._lock = size, OrderedDict(), threading.Lock()
+
+    def get(self, key: tuple[str, str], render) -> str:
+        with self._lock:
+            if key in self._items:
+                self._items.move_to_end(key)
+                return self._items[key]
+        text = render()
+        with self._lock:
+            self._items[key] = text
+            while len(self._items) > self.size:
+                self._items.popitem(last=False)
+        return text
+
+
+_CACHE = _RenderCache()
+
+
+def _finish(body: str | bytes, mimetype: str, record: storage.AssessmentRecord, fmt: str, *,
+            filename: str | None = None, vary: bool = True) -> Response:
+    response = Response(body, mimetype=mimetype)
+    response.set_etag(f"{record.digest[:32]}-{fmt}-{REPORT_RENDERER_VERSION}")
+    response.headers["Cache-Control"] = "private, max-age=0, must-revalidate"
+    response.headers["X-Content-Type-Options"] = "nosniff"
+    if vary:
+        response.vary.add("Accept")
+    if filename:
+        response.headers["Content-Disposition"] = f'inline; filename="{filename}"'
+    return response.make_conditional(request)
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/report")
+def get_report(assessment_id: uuid.UUID) -> Response:
+    """The stored assessment as JSON, a printable HTML page or CSV (content negotiation)."""
+    record = _record(assessment_id)
+    mimetype = _negotiate()
+    report = record.report()
+    if mimetype == "application/json":
+        return _finish(json.dumps(report, ensure_ascii=False), "application/json", record, "json")
+    if mimetype == reports.CSV_MIME:
+        text = _CACHE.get((record.digest, "csv"), lambda: reports.render_csv(report))
+        return _finish(text, "text/csv", record, "csv", filename=f"assessment-{assessment_id}.csv")
+    links = {"JSON": url_for("reports.get_report", assessment_id=assessment_id, format="json"),
+             "CSV": url_for("reports.get_report", assessment_id=assessment_id, format="csv")}
+    if reports.is_route_report(report):
+        links["GeoJSON"] = url_for("reports.get_geojson", assessment_id=assessment_id)
+    text = _CACHE.get((record.digest, "html"), lambda: reports.render_html(report, links=links))
+    response = _finish(text, "text/html", record, "html")
+    response.headers["Content-Security-Policy"] = HTML_CSP
+    return response
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/geojson")
+def get_geojson(assessment_id: uuid.UUID) -> Response:
+    """Evaluated points, receptors and exposure zones of a route assessment as GeoJSON."""
+    record = _record(assessment_id)
+    try:
+        collection = reports.render_geojson(record.report())
+    except reports.NotARouteReport as exc:
+        raise ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
+                           type_=NO_GEOMETRY, title="No map geometry") from None
+    return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record, "geojson",
+                   filename=f"assessment-{assessment_id}.geojson", vary=False)
+
+
+def _recompute(request_json: str) -> dict[str, Any]:
+    """The report the current engine and catalogue give for a stored canonical request."""
+    from .assessment import build_report
+    from .schemas import load_assessment_request
+
+    body = json.loads(request_json)
+    loaded = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
+                                     max_conductors=current_app.config["MAX_CONDUCTORS"])
+    return build_report(loaded)
+
+
+def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:
+    from marshmallow import ValidationError
+
+    from models.errors import EngineInputError
+
+    out: dict[str, Any] = {"tolerance": {"rtol": audit.RTOL, "atol": audit.ATOL,
+                                         "rule": "|stored - recomputed| <= atol + rtol * max(|stored|, |recomputed|)"}}
+    try:
+        fresh = _recompute(record.request_json)
+    except (ValidationError, EngineInputError, ValueError) as exc:
+        detail = exc.messages if isinstance(exc, ValidationError) else str(exc)
+        return {**out, "matches": None, "error": f"The stored request no longer loads or evaluates: {detail}"}
+    compared, moved = audit.compare_reports(stored, fresh)
+    return {
+        **out,
+        "matches": not moved,
+        "values_compared": compared,
+        "moved_count": len(moved),
+        "moved": moved[:audit.MAX_LISTED],
+        "engine_version": {"stored": stored.get("engine_version"), "current": fresh.get("engine_version")},
+        "catalogue_version": {"stored": stored.get("catalogue_version"), "current": fresh.get("catalogue_version")},
+    }
+
+
+@bp.post("/v1/assessments/<uuid:assessment_id>/verify")
+def verify_assessment(assessment_id: uuid.UUID) -> Response:
+    """Recompute a stored assessment and check its digest (changes nothing)."""
+    record = _record(assessment_id)
+    integrity = audit.check_record(record)
+    try:
+        stored = json.loads(record.report_json)
+    except ValueError:
+        stored = None
+    recomputation = (_recomputation(record, stored) if isinstance(stored, dict) else
+                     {"matches": None, "error": "The stored report is not valid JSON."})
+    if not integrity["consistent"]:
+        verdict = "tampered"
+    elif recomputation.get("matches") is None:
+        verdict = "not_recomputable"
+    else:
+        verdict = "match" if recomputation["matches"] else "mismatch"
+    return jsonify({
+        "id": str(record.id),
+        "verified_at": storage.rfc3339(datetime.now(timezone.utc)),
+        "verdict": verdict,
+        "record": integrity,
+        "recomputation": recomputation,
+        "record_modified": False,
+    })
+
+
+@bp.get("/v1/audit/verify-chain")
+def verify_chain() -> Response:
+    """Check every stored record's digest and its link to the previous one."""
+    session = storage.get_session()
+    with session.begin():
+        head = storage.chain_head(session)
+        # Records appended after the head was read (concurrent inserts) are not part of this check.
+        records = (r for r in storage.iter_chain(session) if r.sequence <= head[0])
+        result = audit.verify_chain(records, head)
+    result["checked_at"] = storage.rfc3339(datetime.now(timezone.utc))
+    return jsonify(result)
