@@ -1,0 +1,21 @@
+"""gunicorn settings for emf-assess: ``gunicorn -c deploy/gunicorn.conf.py``.
+
+Configuration, not code: the bind address and worker count come from the
+environment (``HOST``, ``PORT``, ``WEB_CONCURRENCY``); the application reads its own
+``EMF_*`` variables.  No ``preload_app``: every worker runs ``create_app()`` itself,
+so each builds its own database engine and no pooled connection crosses a fork.
+"""
+
+import os
+
+wsgi_app = "service:create_app()"
+bind = f"{os.environ.get('HOST', '0.0.0.0')}:{os.environ.get('PORT', '8000')}"
+workers = int(os.environ.get("WEB_CONCURRENCY", "2"))
+threads = int(os.environ.get("GUNICORN_THREADS", "1"))
+preload_app = False
+timeout = int(os.environ.get("GUNICORN_TIMEOUT", "120"))  # a 20,001-point profile takes well under this
+graceful_timeout = 20
+accesslog = "-"  # stdout
+errorlog = "-"
+loglevel = os.environ.get("EMF_LOG_LEVEL", "info").lower()
+capture_output = True
