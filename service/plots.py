@@ -18,6 +18,7 @@ returns one self-contained ``<svg>`` element as text, ready to inline in HTML:
 
 from __future__ import annotations
 
+import html
 import io
 import math
 import re
@@ -84,9 +85,8 @@ def _svg_text(fig: Figure, prefix: str, title: str) -> str:
     svg = re.sub(r'(url\(#|href="#)([^)"]+)', rename_ref, svg)
     # Scale with the page: width 100 % of the container, height from the viewBox ratio.
     svg = re.sub(r'<svg ([^>]*?)width="[^"]*" height="[^"]*"', r'<svg \1', svg, count=1)
-    safe_title = title.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
-    svg = svg.replace(">", f' role="img" aria-label="{safe_title.replace(chr(34), "&quot;")}" class="figure-svg">'
-                      f"<title>{safe_title}</title>", 1)
+    safe_title = html.escape(title, quote=True)
+    svg = svg.replace(">", f' role="img" aria-label="{safe_title}" class="figure-svg"><title>{safe_title}</title>', 1)
     return svg
 
 
@@ -168,11 +168,11 @@ def _profile_panel(ax, offset_m: np.ndarray, values: np.ndarray, *, quantity: st
     _style_axes(ax)
 
 
-def lateral_profile_svg(offset_m: Sequence[float], e_kv_m: Sequence[float] | None, b_ut: Sequence[float] | None, *,
+def lateral_profile_figure(offset_m: Sequence[float], e_kv_m: Sequence[float] | None, b_ut: Sequence[float] | None, *,
                         e_thresholds: Sequence[Threshold] = (), b_thresholds: Sequence[Threshold] = (),
                         right_of_way: Mapping[str, float] | None = None, height_m: float | None = None,
-                        quantity_label: str = "resultant", offset_label: str = "lateral offset from centre line",
-                        title: str = "Lateral profile") -> str:
+                        quantity_label: str = "resultant",
+                        offset_label: str = "lateral offset from centre line") -> Figure:
     """Lateral profile of E [kV/m] (upper panel) and B [µT] (lower panel) against offset [m].
 
     Parameters
@@ -192,8 +192,8 @@ def lateral_profile_svg(offset_m: Sequence[float], e_kv_m: Sequence[float] | Non
 
     Returns
     -------
-    str
-        One ``<svg>`` element.
+    Figure
+        The figure (:func:`lateral_profile_svg` renders it to an ``<svg>`` element).
     """
     x = _finite(offset_m)
     panels = [(p, q, u, th) for p, q, u, th in (
@@ -211,7 +211,12 @@ def lateral_profile_svg(offset_m: Sequence[float], e_kv_m: Sequence[float] | Non
         xlabel += f", {height_m:g} m above ground"
     axes[-1].set_xlabel(xlabel, fontsize=_FONT_SIZE)
     axes[-1].set_xlim(float(np.nanmin(x)), float(np.nanmax(x)))
-    return _svg_text(fig, "profile", title)
+    return fig
+
+
+def lateral_profile_svg(*args: Any, title: str = "Lateral profile", **kwargs: Any) -> str:
+    """:func:`lateral_profile_figure` rendered as one inline ``<svg>`` element (``title`` becomes its accessible name)."""
+    return _svg_text(lateral_profile_figure(*args, **kwargs), "profile", title)
 
 
 def load_cases_svg(cases: Sequence[tuple[str, Sequence[float], Sequence[float]]], *, unit: str = "µT",
@@ -265,10 +270,9 @@ def _ground_hatch(ax, x0: float, x1: float, depth: float) -> None:
     ax.plot([x0, x1], [0, 0], color=_INK, linewidth=2.0, zorder=1, label="ground (height 0)")
 
 
-def cross_section_svg(cross_section: Mapping[str, Any], *, evaluation_heights_m: Sequence[float] = (),
+def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights_m: Sequence[float] = (),
                       extent_m: tuple[float, float] | None = None,
-                      right_of_way: Mapping[str, float] | None = None,
-                      title: str = "Cross-section drawing") -> str:
+                      right_of_way: Mapping[str, float] | None = None) -> Figure:
     """Drawing of the cross-section to scale (equal aspect): conductors, bundles, earth wires, ground.
 
     Parameters
@@ -422,7 +426,12 @@ def cross_section_svg(cross_section: Mapping[str, Any], *, evaluation_heights_m:
         inset.set_yticks([])
         inset.set_title(f"bundle of circuit {_label(', '.join(circuit_ids))}\n{count} x {float(diameter or 0) * 1000:.1f} mm, "
                         f"spacing {float(spacing or 0):.2f} m\n(enlarged, to scale)", fontsize=_FONT_SIZE - 2, pad=3)
-    return _svg_text(fig, "section", title)
+    return fig
+
+
+def cross_section_svg(*args: Any, title: str = "Cross-section drawing", **kwargs: Any) -> str:
+    """:func:`cross_section_figure` rendered as one inline ``<svg>`` element (``title`` becomes its accessible name)."""
+    return _svg_text(cross_section_figure(*args, **kwargs), "section", title)
 
 
 # --------------------------------------------------------------------------- route plan view
@@ -450,9 +459,9 @@ def _polygon_path(rings: list[list[tuple[float, float]]]) -> MplPath:
     return MplPath(np.array(verts, dtype=float), codes)
 
 
-def route_plan_svg(supports: Sequence[Mapping[str, Any]], *, path: Sequence[tuple[float, float]] | None = None,
+def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[tuple[float, float]] | None = None,
                    receptors: Sequence[Mapping[str, Any]] = (), zones: Mapping[str, Any] | None = None,
-                   geographic: bool = False, title: str = "Route plan view") -> str:
+                   geographic: bool = False) -> Figure:
     """Plan view of a route: centre line through the supports, evaluation path, receptors, exposure zones.
 
     Parameters
@@ -535,4 +544,9 @@ def route_plan_svg(supports: Sequence[Mapping[str, Any]], *, path: Sequence[tupl
     ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), fontsize=_FONT_SIZE - 1, frameon=False)
     _style_axes(ax)
     ax.tick_params(axis="x", labelrotation=30)
-    return _svg_text(fig, "plan", title)
+    return fig
+
+
+def route_plan_svg(*args: Any, title: str = "Route plan view", **kwargs: Any) -> str:
+    """:func:`route_plan_figure` rendered as one inline ``<svg>`` element (``title`` becomes its accessible name)."""
+    return _svg_text(route_plan_figure(*args, **kwargs), "plan", title)

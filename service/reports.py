@@ -533,6 +533,20 @@ def _load_cases(report: Mapping[str, Any]) -> dict[str, Any] | None:
     return {"figure": figure, "table": table}
 
 
+def _maximum_text(maximum: Any, key: str, unit: str) -> str:
+    """"4.120 kV/m at offset +10.0 m" from a ``maxima`` entry (cross-section or route)."""
+    if not isinstance(maximum, Mapping) or not isinstance(maximum.get(key), (int, float)):
+        return "–"
+    text = f"{format_number(maximum[key])} {unit}"
+    if isinstance(maximum.get("offset_m"), (int, float)):
+        text += f" at offset {float(maximum['offset_m']):+.1f} m"
+    elif isinstance(maximum.get("x"), (int, float)) and isinstance(maximum.get("y"), (int, float)):
+        text += f" at ({format_number(maximum['x'], 8)}, {format_number(maximum['y'], 8)})"
+    if isinstance(maximum.get("height_m"), (int, float)):
+        text += f", {float(maximum['height_m']):.1f} m above ground"
+    return text
+
+
 def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
     """Everything the HTML template shows, computed from the report (strings, SVG text, rows)."""
     from markupsafe import Markup
@@ -572,8 +586,10 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
     compliance = _compliance_rows(report)
     failed = [r for r in compliance if not r["passes"]]
     maxima = report.get("maxima") or {}
+    shown = {"title": "", "reference": "", "id": None, "created_at": None, "engine_version": "unknown",
+             "catalogue_version": "unknown", "compliance_quantity": "resultant", "digest": None, **report}
     return {
-        "r": report,
+        "r": shown,
         "route": route,
         "outcome": report.get("outcome", "fail" if failed else "pass"),
         "failed": failed,
@@ -590,7 +606,8 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "cautions": list(report.get("cautions", ())),
         "circuits": _circuit_rows(section),
         "tables": [_point_table(report, name, rows) for name, rows in point_sets(report) if name != "grid"],
-        "max_e": (maxima.get("e") or {}), "max_b": (maxima.get("b") or {}),
+        "max_e": _maximum_text(maxima.get("e"), "value_kv_m", "kV/m"),
+        "max_b": _maximum_text(maxima.get("b"), "value_ut", "µT"),
         "input_digest": canonical_input_digest(report),
         "frequency": format_number(report.get("frequency_hz")),
     }
