@@ -60,6 +60,9 @@ engine at mid-span).
 
 SET_ORDER = ("path", "lateral_profile", "receptors", "grid")
 
+PATH_DENSIFY_DEG = 1e-4
+"""Largest vertex spacing of a lon/lat path before it is transformed (about 11 m) [deg]."""
+
 
 @dataclass(frozen=True)
 class RouteSetResult:
@@ -308,6 +311,10 @@ def evaluate_route(
     if evaluation.path is not None:
         coords = np.asarray(evaluation.path.geometry.coords, dtype=float)
         _check_request_positions(frame, coords[:, 0], coords[:, 1], "path.geometry")
+        if frame.transforms:
+            # RFC 7946 lines are straight in the request coordinates: densify before transforming
+            coords = shapely.get_coordinates(shapely.segmentize(LineString(coords), PATH_DENSIFY_DEG
+                                                                if frame.geographic else 10.0))
         xw, yw = frame.to_working(coords[:, 0], coords[:, 1], "path.geometry")
         pts, dist = path_points(LineString(np.column_stack([xw, yw])), evaluation.path.step_m,
                                 evaluation.path.height_m, max_points=max_points)
