@@ -154,3 +154,28 @@ def test_not_exceeded_gives_empty_multipolygon():
     assert feat["properties"]["area_m2"] == 0.0
     assert feat["properties"]["width_left_m"] is None and feat["properties"]["width_right_m"] is None
     assert shape(feat["geometry"]).is_empty
+
+
+def test_zone_edge_converges_with_grid_resolution_and_one_sided_zone():
+    # A balanced circuit entirely right of the centre line (offsets +10..+18 m): the 1 µT zone's
+    # right width converges to the 2-D compliance distance as the grid is refined (error
+    # O(h^2) of linear interpolation); its left width is smaller than its right one.
+    conductors = (Conductor("L1", 10.0, 12.0), Conductor("L2", 14.0, 12.0), Conductor("L3", 18.0, 12.0))
+    section = CrossSection((Circuit("c1", "overhead", 132.0, 500.0, conductors, Bundle(0.03)),))
+    route = Route((Support("S1", 0.0, -100.0), Support("S2", 0.0, 100.0)), ())
+    offsets = np.arange(-80.0, 100.0 + 1e-9, 0.01)
+    th = custom_threshold("b1", "B", 1.0, "µT", F_HZ)
+    left_ref, right_ref, _ = compliance_distances(offsets, evaluate_cross_section(section, offsets, 1.0, F_HZ).b_rms_t,
+                                                  th.limit_si)
+    errors = []
+    for res_m in (8.0, 4.0, 2.0):
+        axes = grid_axes((-80.0, -20.0, 100.0, 20.0), res_m, 1.0)
+        row = evaluate_cross_section(section, axes.x_m, 1.0, F_HZ).b_rms_t
+        grid = np.tile(row, (len(axes.y_m), 1))
+        (feat,) = zone_features([th], axes, grid, grid, route_m=route,
+                                frame=working_frame(None, [0.0], [0.0]))["features"]
+        span = feat["properties"]["spans"][0]
+        errors.append(abs(span["width_right_m"] - right_ref))
+        assert abs(span["width_left_m"] - left_ref) < res_m
+        assert span["width_left_m"] < span["width_right_m"]
+    assert errors[-1] < 0.1 and errors[-1] < errors[0]      # measured: 0.28, 0.19, 0.02 m
