@@ -319,7 +319,7 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
                              for ci in circuits if int((ci.get("bundle") or {}).get("count", 1) or 1) > 1}
     fig_w = 9.0
     main_w = fig_w * (0.78 if circuits_with_bundles else 1.0)
-    fig_h = min(max(main_w * height_m / width_m + 1.8, 3.6), 8.0)
+    fig_h = min(max((main_w - 1.0) * height_m / width_m + 1.9, 3.6), 8.0)
     fig = _figure(fig_w, fig_h)
     if circuits_with_bundles:
         grid = fig.add_gridspec(max(len(circuits_with_bundles), 2), 2, width_ratios=(4.2, 1.0))
@@ -404,7 +404,8 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
     ax.set_xlabel("offset from centre line (m); drawn to scale, equal horizontal and vertical scales",
                   fontsize=_FONT_SIZE)
     ax.set_ylabel("height above ground (m)", fontsize=_FONT_SIZE)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.16), fontsize=_FONT_SIZE - 1, frameon=False, ncol=3)
+    handles, labels = ax.get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", fontsize=_FONT_SIZE - 1, frameon=False, ncol=3)
     _style_axes(ax)
 
     for inset, (count, spacing, diameter) in zip(detail_axes, sorted(circuits_with_bundles, key=str)):

@@ -43,6 +43,14 @@ MODEL_LIMITS_COMMON: tuple[str, ...] = (
     "fields (common practice).",
 )
 
+# Provenance of catalogue values (models/catalogue.py ``Threshold.status``), said plainly.
+STATUS_TEXT = {
+    "seen": "value checked against the source",
+    "memory": "value from memory, to be checked against the source",
+    "derived": "value derived from the source's formula",
+    "custom": "user-supplied value",
+}
+
 QUANTITY_TEXT = {
     "resultant": "resultant: root-sum-square of the rms values of the field components (what three-axis "
                  "meters record)",
@@ -476,7 +484,7 @@ def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
         rows.append({
             "level": c.get("title") or c["level_id"], "level_id": c["level_id"],
             "citation": c.get("citation", ""), "population": c.get("population", ""),
-            "status": c.get("status", ""), "quantity": c["quantity"], "unit": unit,
+            "status": STATUS_TEXT.get(c.get("status", ""), c.get("status", "")), "quantity": c["quantity"], "unit": unit,
             "value": format_number(c.get(f"max_{suffix}")), "limit": format_number(c.get(f"limit_{suffix}")),
             "exposure_index": format_number(c.get("exposure_index"), 3),
             "percent": f"{float(c.get('exposure_index', 0)) * 100:.0f} %",
@@ -609,7 +617,7 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "max_e": _maximum_text(maxima.get("e"), "value_kv_m", "kV/m"),
         "max_b": _maximum_text(maxima.get("b"), "value_ut", "µT"),
         "input_digest": canonical_input_digest(report),
-        "frequency": format_number(report.get("frequency_hz")),
+        "frequency": (f"{float(report['frequency_hz']):g}" if isinstance(report.get("frequency_hz"), (int, float)) else "–"),
     }
 
 
