@@ -73,14 +73,14 @@ DEFAULT_CHUNK_SIZE = 65536
 """Observation points per call of the field kernel (bounds the working memory)."""
 
 _POINT_BLOCK = 64      # points per cache block in the field kernel
-_SEGMENT_BLOCK = 256   # segments per cache block (10 float64 each: 20 KiB, fits L1)
-_NSEG_FIELDS = 12      # columns of the packed segment table, see _pack_segments
+_SEGMENT_BLOCK = 256   # segments per cache block (7 float64 per vertex + 2 scratch: 18 KiB, fits L1)
+_BOX_GROUP = 16        # segments per bounding box in the inside-a-wire test
 
 
 # --------------------------------------------------------------------------- kernels
 
 
-@numba.njit(cache=True, inline="always")
+@numba.njit(cache=True, inline="always", error_model="numpy")
 def _coef_ratio(px, py, pz, ax, ay, az, bx, by, bz):  # pragma: no cover - compiled
     """(S+L)(S'-L) / ((S-L)(S'+L)) for the point p and segment A->B with its image (z -> -z).
 
@@ -119,7 +119,7 @@ def _coef_ratio(px, py, pz, ax, ay, az, bx, by, bz):  # pragma: no cover - compi
     return ((r1 + r2 + length) * (si - length)) / ((e1 + e2) * (si + length))
 
 
-@numba.njit(parallel=True, cache=True)
+@numba.njit(parallel=True, cache=True, error_model="numpy", boundscheck=False)
 def _potential_matrix_kernel(pts, seg_a, seg_b, out):  # pragma: no cover - compiled
     """out[i, j] = ln ratio: potential at pts[i] of unit k*q on segment j and -q on its image."""
     n = pts.shape[0]
@@ -130,7 +130,7 @@ def _potential_matrix_kernel(pts, seg_a, seg_b, out):  # pragma: no cover - comp
                                              seg_a[j, 2], seg_b[j, 0], seg_b[j, 1], seg_b[j, 2]))
 
 
-@numba.njit(parallel=True, cache=True)
+@numba.njit(parallel=True, cache=True, error_model="numpy", boundscheck=False)
 def _matching_matrix_kernel(mp, seg_a, seg_b, out):  # pragma: no cover - compiled
     """out[i, j] = mean over the matching points mp[i, :] of the ln ratio (one log per entry)."""
     m = seg_a.shape[0]
@@ -144,109 +144,141 @@ def _matching_matrix_kernel(mp, seg_a, seg_b, out):  # pragma: no cover - compil
             out[i, j] = math.log(prod) / nk
 
 
-@numba.njit(parallel=True, cache=True, fastmath=True)
-def _field_kernel(pts, seg, out, near):  # pragma: no cover - compiled
-    """Field geometry of all segments + images at pts, times their charges (without the factor k).
+@numba.njit(parallel=True, cache=True, fastmath=True, error_model="numpy", boundscheck=False)
+def _field_kernel(pts, vert, sdat, blocks, out):  # pragma: no cover - compiled
+    """Field of all charged segments + images at pts (without the factor k = 1/(4 pi eps0)).
 
-    seg columns: ax, ay, az, dx, dy, dz, bz, 2L, L, q_re, q_im, 1/(2r)  (see _pack_segments)
-    out[i, c, 0/1]: real/imag part of component c; near[i]: min over segments of (S - L)/(2 r),
-    a value < 1 flags a point possibly inside a wire (checked exactly afterwards).
+    Segments are stored as polylines: segment k joins vertices k and k+1 of ``vert``
+    (rows x, y, z; shape (3, nv)); ``sdat[:, k]`` = 2L, L, q_re, q_im of that segment.
+    ``blocks[b] = (k0, k1)``: segments k0..k1-1 of one polyline, at most _SEGMENT_BLOCK.
+    Distances to a vertex (and to its image) are computed once and shared by the two
+    segments meeting there: 2 square roots + 1 division per segment-point pair.
+    out[i, c, 0/1]: real/imag part of component c.
+
+    Threads take blocks of _POINT_BLOCK points; each point sweeps a segment block (its
+    slice of ``vert``/``sdat``, 7 KiB, stays in L1) in two loops that LLVM vectorises
+    (AVX2): the loops run over slices with ``range(n)`` so that no negative-index
+    wrap-around blocks vectorisation, and the error model is numpy's (no
+    ZeroDivisionError branch).  Points inside a wire must be rejected beforehand.
     """
     n = pts.shape[0]
-    m = seg.shape[0]
     nblocks = (n + _POINT_BLOCK - 1) // _POINT_BLOCK
     for blk in numba.prange(nblocks):
         i0 = blk * _POINT_BLOCK
         i1 = min(i0 + _POINT_BLOCK, n)
-        acc = np.zeros((_POINT_BLOCK, 7))
-        for p in range(i1 - i0):
-            acc[p, 6] = np.inf
-        for j0 in range(0, m, _SEGMENT_BLOCK):
-            j1 = min(j0 + _SEGMENT_BLOCK, m)
+        acc = np.zeros((_POINT_BLOCK, 6))
+        rv = np.empty(_SEGMENT_BLOCK + 1)
+        rvi = np.empty(_SEGMENT_BLOCK + 1)
+        for b in range(blocks.shape[0]):
+            k0 = blocks[b, 0]
+            k1 = blocks[b, 1]
+            ns = k1 - k0
+            vx = vert[0, k0:k1 + 1]
+            vy = vert[1, k0:k1 + 1]
+            vz = vert[2, k0:k1 + 1]
+            s_2l = sdat[0, k0:k1]
+            s_l = sdat[1, k0:k1]
+            s_qr = sdat[2, k0:k1]
+            s_qi = sdat[3, k0:k1]
             for p in range(i1 - i0):
                 px = pts[i0 + p, 0]
                 py = pts[i0 + p, 1]
                 pz = pts[i0 + p, 2]
+                for t in range(ns + 1):
+                    dx = px - vx[t]
+                    dy = py - vy[t]
+                    dz = pz - vz[t]
+                    dzi = pz + vz[t]          # image vertex: z negated
+                    h = dx * dx + dy * dy
+                    rv[t] = math.sqrt(h + dz * dz)
+                    rvi[t] = math.sqrt(h + dzi * dzi)
                 exr = 0.0
                 exi = 0.0
                 eyr = 0.0
                 eyi = 0.0
                 ezr = 0.0
                 ezi = 0.0
-                nmin = np.inf
-                for j in range(j0, j1):
-                    d1x = px - seg[j, 0]
-                    d1y = py - seg[j, 1]
-                    d1z = pz - seg[j, 2]
-                    d2x = d1x - seg[j, 3]
-                    d2y = d1y - seg[j, 4]
-                    d2z = d1z - seg[j, 5]
-                    h1 = d1x * d1x + d1y * d1y
-                    h2 = d2x * d2x + d2y * d2y
-                    two_l = seg[j, 7]
-                    length = seg[j, 8]
-                    r1 = math.sqrt(h1 + d1z * d1z)
-                    r2 = math.sqrt(h2 + d2z * d2z)
+                for t in range(ns):
+                    d1x = px - vx[t]
+                    d1y = py - vy[t]
+                    d1z = pz - vz[t]
+                    d2x = px - vx[t + 1]
+                    d2y = py - vy[t + 1]
+                    d2z = pz - vz[t + 1]
+                    d1zi = pz + vz[t]
+                    d2zi = pz + vz[t + 1]
+                    r1 = rv[t]
+                    r2 = rv[t + 1]
+                    r1i = rvi[t]
+                    r2i = rvi[t + 1]
+                    length = s_l[t]
                     ssum = r1 + r2
-                    f = two_l / (r1 * r2 * (ssum * ssum - length * length))
-                    gx = f * (d1x * r2 + d2x * r1)
-                    gy = f * (d1y * r2 + d2y * r1)
-                    gz = f * (d1z * r2 + d2z * r1)
-                    # image: z of both ends negated
-                    d1zi = pz + seg[j, 2]
-                    d2zi = pz + seg[j, 6]
-                    r1i = math.sqrt(h1 + d1zi * d1zi)
-                    r2i = math.sqrt(h2 + d2zi * d2zi)
                     si = r1i + r2i
-                    fi = two_l / (r1i * r2i * (si * si - length * length))
-                    gx -= fi * (d1x * r2i + d2x * r1i)
-                    gy -= fi * (d1y * r2i + d2y * r1i)
-                    gz -= fi * (d1zi * r2i + d2zi * r1i)
-                    qr = seg[j, 9]
-                    qi = seg[j, 10]
+                    den = r1 * r2 * (ssum * ssum - length * length)
+                    deni = r1i * r2i * (si * si - length * length)
+                    inv = s_2l[t] / (den * deni)     # one division for segment and image
+                    f = inv * deni
+                    fi = inv * den
+                    gx = f * (d1x * r2 + d2x * r1) - fi * (d1x * r2i + d2x * r1i)
+                    gy = f * (d1y * r2 + d2y * r1) - fi * (d1y * r2i + d2y * r1i)
+                    gz = f * (d1z * r2 + d2z * r1) - fi * (d1zi * r2i + d2zi * r1i)
+                    qr = s_qr[t]
+                    qi = s_qi[t]
                     exr += qr * gx
                     exi += qi * gx
                     eyr += qr * gy
                     eyi += qi * gy
                     ezr += qr * gz
                     ezi += qi * gz
-                    nmin = min(nmin, (ssum - length) * seg[j, 11])
                 acc[p, 0] += exr
                 acc[p, 1] += exi
                 acc[p, 2] += eyr
                 acc[p, 3] += eyi
                 acc[p, 4] += ezr
                 acc[p, 5] += ezi
-                acc[p, 6] = min(acc[p, 6], nmin)
         for p in range(i1 - i0):
             for c in range(3):
                 out[i0 + p, c, 0] = acc[p, 2 * c]
                 out[i0 + p, c, 1] = acc[p, 2 * c + 1]
-            near[i0 + p] = acc[p, 6]
 
 
-@numba.njit(cache=True)
-def _first_inside(pts, cand, seg_a, seg_b, radius):  # pragma: no cover - compiled
-    """Exact test of flagged points: (point index, segment index) of the first point within a wire radius, or (-1, -1)."""
+@numba.njit(parallel=True, cache=True, error_model="numpy", boundscheck=False)
+def _inside_kernel(pts, seg_a, seg_b, radius, box_lo, box_hi, hit):  # pragma: no cover - compiled
+    """hit[i] = index of the first segment whose capsule (radius[j] around it) contains pts[i], else -1.
+
+    Segments are taken in groups of _BOX_GROUP with an axis-aligned bounding box
+    (inflated by the group's largest radius); only points inside a box are tested
+    exactly (distance to the segment < radius).
+    """
+    n = pts.shape[0]
     m = seg_a.shape[0]
-    for c in range(cand.shape[0]):
-        i = cand[c]
-        for j in range(m):
-            dx = seg_b[j, 0] - seg_a[j, 0]
-            dy = seg_b[j, 1] - seg_a[j, 1]
-            dz = seg_b[j, 2] - seg_a[j, 2]
-            l2 = dx * dx + dy * dy + dz * dz
-            wx = pts[i, 0] - seg_a[j, 0]
-            wy = pts[i, 1] - seg_a[j, 1]
-            wz = pts[i, 2] - seg_a[j, 2]
-            t = (wx * dx + wy * dy + wz * dz) / l2
-            t = min(max(t, 0.0), 1.0)
-            ex = wx - t * dx
-            ey = wy - t * dy
-            ez = wz - t * dz
-            if ex * ex + ey * ey + ez * ez < radius[j] * radius[j]:
-                return i, j
-    return -1, -1
+    ng = box_lo.shape[0]
+    for i in numba.prange(n):
+        hit[i] = -1
+        px = pts[i, 0]
+        py = pts[i, 1]
+        pz = pts[i, 2]
+        for g in range(ng):
+            if (px < box_lo[g, 0] or px > box_hi[g, 0] or py < box_lo[g, 1] or py > box_hi[g, 1]
+                    or pz < box_lo[g, 2] or pz > box_hi[g, 2]):
+                continue
+            for j in range(g * _BOX_GROUP, min((g + 1) * _BOX_GROUP, m)):
+                dx = seg_b[j, 0] - seg_a[j, 0]
+                dy = seg_b[j, 1] - seg_a[j, 1]
+                dz = seg_b[j, 2] - seg_a[j, 2]
+                wx = px - seg_a[j, 0]
+                wy = py - seg_a[j, 1]
+                wz = pz - seg_a[j, 2]
+                t = (wx * dx + wy * dy + wz * dz) / (dx * dx + dy * dy + dz * dz)
+                t = min(max(t, 0.0), 1.0)
+                ex = wx - t * dx
+                ey = wy - t * dy
+                ez = wz - t * dz
+                if ex * ex + ey * ey + ez * ez < radius[j] * radius[j]:
+                    hit[i] = j
+                    break
+            if hit[i] >= 0:
+                break
 
 
 # --------------------------------------------------------------------------- helpers
@@ -479,40 +511,82 @@ def _check_charges(charges, segments: SegmentSet) -> np.ndarray:
     return q.astype(complex)
 
 
-def _pack_segments(segments: SegmentSet, charges: np.ndarray) -> np.ndarray:
-    """Contiguous per-segment table for the field kernel (charged segments only)."""
+def _pack_segments(segments: SegmentSet, charges: np.ndarray):
+    """Polyline tables for the field kernel (charged segments only).
+
+    Consecutive segments sharing an end point (``start_m[j] == end_m[j-1]``) form one
+    polyline; the vertices of all polylines are stacked, and each polyline is cut into
+    blocks of at most ``_SEGMENT_BLOCK`` segments.
+
+    Returns
+    -------
+    vert : ndarray, shape (3, nv)
+        Vertex coordinates [m].
+    sdat : ndarray, shape (4, nv)
+        Per segment (indexed by its first vertex): 2L, L [m], q_re, q_im [C/m].
+    blocks : int64 ndarray, shape (nb, 2)
+        First and one-past-last segment (= vertex) index of each block.
+    """
     mask = _active(segments) & (charges != 0)
     a = np.asarray(segments.start_m, dtype=float)[mask]
     b = np.asarray(segments.end_m, dtype=float)[mask]
-    radius = np.asarray(segments.wire_radius_m, dtype=float)[np.asarray(segments.wire_index)[mask]]
-    d = b - a
-    length = np.linalg.norm(d, axis=1)
-    seg = np.empty((a.shape[0], _NSEG_FIELDS))
-    seg[:, 0:3] = a
-    seg[:, 3:6] = d
-    seg[:, 6] = b[:, 2]
-    seg[:, 7] = 2.0 * length
-    seg[:, 8] = length
-    seg[:, 9] = charges[mask].real
-    seg[:, 10] = charges[mask].imag
-    seg[:, 11] = 1.0 / (2.0 * radius)
-    return seg
+    q = charges[mask]
+    m = a.shape[0]
+    new_line = np.ones(m, dtype=bool)
+    if m > 1:
+        new_line[1:] = ~np.all(a[1:] == b[:-1], axis=1)
+    line_no = np.cumsum(new_line) - 1                 # polyline of each segment
+    k = np.arange(m) + line_no                        # first-vertex index of each segment
+    nv = m + int(new_line.sum())
+    vert = np.empty((3, nv))
+    vert[:, k] = a.T
+    vert[:, k + 1] = b.T
+    length = np.linalg.norm(b - a, axis=1)
+    sdat = np.zeros((4, nv))
+    sdat[0, k] = 2.0 * length
+    sdat[1, k] = length
+    sdat[2, k] = q.real
+    sdat[3, k] = q.imag
+    blocks = []
+    starts = np.flatnonzero(new_line)
+    ends = np.append(starts[1:], m)
+    for s0, s1 in zip(starts, ends):
+        for j0 in range(s0, s1, _SEGMENT_BLOCK):
+            j1 = min(j0 + _SEGMENT_BLOCK, s1)
+            blocks.append((k[j0], k[j1 - 1] + 1))
+    return vert, sdat, np.array(blocks, dtype=np.int64).reshape(-1, 2)
 
 
-def _raise_if_inside(pts, near, segments: SegmentSet, offset: int) -> None:
-    cand = np.flatnonzero(near < 1.0)
-    if cand.size == 0:
-        return
+def _raise_if_inside(pts, segments: SegmentSet, offset: int = 0) -> None:
+    """GeometryError naming the first point within a wire radius of an unscreened segment."""
     mask = _active(segments)
+    if not mask.any() or pts.shape[0] == 0:
+        return
     a = np.ascontiguousarray(np.asarray(segments.start_m, dtype=float)[mask])
     b = np.ascontiguousarray(np.asarray(segments.end_m, dtype=float)[mask])
-    radius = np.ascontiguousarray(
-        np.asarray(segments.wire_radius_m, dtype=float)[np.asarray(segments.wire_index)[mask]])
-    i, j = _first_inside(pts, cand.astype(np.int64), a, b, radius)
-    if i >= 0:
-        wire = int(np.asarray(segments.wire_index)[mask][j])
+    widx = np.asarray(segments.wire_index)[mask]
+    radius = np.ascontiguousarray(np.asarray(segments.wire_radius_m, dtype=float)[widx])
+    m = a.shape[0]
+    ng = (m + _BOX_GROUP - 1) // _BOX_GROUP
+    pad = ng * _BOX_GROUP - m
+    lo = np.minimum(a, b)
+    hi = np.maximum(a, b)
+    r = radius
+    if pad:
+        lo = np.vstack([lo, np.repeat(lo[-1:], pad, axis=0)])
+        hi = np.vstack([hi, np.repeat(hi[-1:], pad, axis=0)])
+        r = np.append(r, np.repeat(r[-1], pad))
+    rg = r.reshape(ng, _BOX_GROUP).max(axis=1)[:, None]
+    box_lo = np.ascontiguousarray(lo.reshape(ng, _BOX_GROUP, 3).min(axis=1) - rg)
+    box_hi = np.ascontiguousarray(hi.reshape(ng, _BOX_GROUP, 3).max(axis=1) + rg)
+    hit = np.empty(pts.shape[0], dtype=np.int64)
+    _inside_kernel(pts, a, b, radius, box_lo, box_hi, hit)
+    bad = np.flatnonzero(hit >= 0)
+    if bad.size:
+        i = int(bad[0])
+        j = int(hit[i])
         raise must_be(f"points[{offset + i}]",
-                      f"outside every conductor (wire {wire} has radius {float(radius[j])!r} m)",
+                      f"outside every conductor (wire {int(widx[j])} has radius {float(radius[j])!r} m)",
                       pts[i].tolist(), GeometryError)
 
 
@@ -574,17 +648,15 @@ def electric_field_segments(points_m, segments: SegmentSet, charges=None, *,
     else:
         _check_segments(segments)
         charges = _check_charges(charges, segments)
-    seg = _pack_segments(segments, charges)
+    vert, sdat, blocks = _pack_segments(segments, charges)
     n = pts.shape[0]
     out = np.zeros((n, 3, 2))
-    if seg.shape[0] == 0 or n == 0:
+    if blocks.shape[0] == 0 or n == 0:
         return out.view(np.complex128).reshape(n, 3)
-    near = np.empty(min(chunk_size, n))
+    _raise_if_inside(pts, segments)
     for i0 in range(0, n, chunk_size):
         i1 = min(i0 + chunk_size, n)
-        chunk = pts[i0:i1]
-        _field_kernel(chunk, seg, out[i0:i1], near[: i1 - i0])
-        _raise_if_inside(chunk, near[: i1 - i0], segments, i0)
+        _field_kernel(pts[i0:i1], vert, sdat, blocks, out[i0:i1])
     out *= K_E
     return out.view(np.complex128).reshape(n, 3)
 
@@ -625,7 +697,5 @@ def warm_up() -> None:
     b = np.array([[10.0, 0.0, 10.0], [20.0, 0.0, 10.0]])
     seg = SegmentSet(a, b, np.zeros(2, complex), np.zeros(2, np.int64), np.array([1.0 + 0j]),
                      np.array([0.01]), np.array([False]))
-    electric_field_segments(np.array([[5.0, 1.0, 1.0]]), seg)
-    # exercise the exact inside-wire test once so it is compiled too
-    _first_inside(np.array([[5.0, 0.0, 10.0]]), np.array([0], dtype=np.int64), a, b, np.array([0.01, 0.01]))
+    electric_field_segments(np.array([[5.0, 1.0, 1.0], [5.0, 0.02, 10.0]]), seg)
 
