@@ -131,17 +131,81 @@ def _potential_matrix_kernel(pts, seg_a, seg_b, out):  # pragma: no cover - comp
 
 
 @numba.njit(parallel=True, cache=True, error_model="numpy", boundscheck=False)
-def _matching_matrix_kernel(mp, seg_a, seg_b, out):  # pragma: no cover - compiled
-    """out[i, j] = mean over the matching points mp[i, :] of the ln ratio (one log per entry)."""
-    m = seg_a.shape[0]
+def _matching_matrix_kernel(mp, vert, sdir, blocks, out):  # pragma: no cover - compiled
+    """out[i, j] = mean over the matching points mp[i, :] of the ln ratio of segment j (one log per entry).
+
+    Segments as polylines (see _field_kernel): ``vert`` (3, nv) vertices, ``sdir[:, k]`` =
+    ux, uy, uz, L of the segment starting at vertex k, ``blocks[b] = (k0, k1, col0)``:
+    segments k0..k1-1 are matrix columns col0..col0+k1-k0-1.  Vertex distances are shared
+    by adjacent segments.  For each point the ratio ``(S+L)(S'-L) / ((S-L)(S'+L))`` is
+    kept as numerator and denominator, multiplied over the matching points, and divided
+    and logged once; beside the segment (0 < t < L) ``1/(S-L)`` is written as
+    ``(r1+t)(r2+L-t) / (rho^2 (S+L))`` (no cancellation).
+    """
+    m = mp.shape[0]
     nk = mp.shape[1]
-    for i in numba.prange(mp.shape[0]):
+    nv = vert.shape[1]
+    vx = vert[0]
+    vy = vert[1]
+    vz = vert[2]
+    for i in numba.prange(m):
+        num = np.ones(m)
+        den = np.ones(m)
+        rv = np.empty(nv)
+        rvi = np.empty(nv)
+        for c in range(nk):
+            px = mp[i, c, 0]
+            py = mp[i, c, 1]
+            pz = mp[i, c, 2]
+            for k in range(nv):
+                dx = px - vx[k]
+                dy = py - vy[k]
+                dz = pz - vz[k]
+                dzi = pz + vz[k]
+                h = dx * dx + dy * dy
+                rv[k] = math.sqrt(h + dz * dz)
+                rvi[k] = math.sqrt(h + dzi * dzi)
+            for b in range(blocks.shape[0]):
+                k0 = blocks[b, 0]
+                k1 = blocks[b, 1]
+                ns = k1 - k0
+                bx = vx[k0:k1 + 1]
+                by = vy[k0:k1 + 1]
+                bz = vz[k0:k1 + 1]
+                br = rv[k0:k1 + 1]
+                bri = rvi[k0:k1 + 1]
+                ux = sdir[0, k0:k1]
+                uy = sdir[1, k0:k1]
+                uz = sdir[2, k0:k1]
+                ul = sdir[3, k0:k1]
+                bnum = num[blocks[b, 2]:blocks[b, 2] + ns]
+                bden = den[blocks[b, 2]:blocks[b, 2] + ns]
+                for t in range(ns):
+                    d1x = px - bx[t]
+                    d1y = py - by[t]
+                    d1z = pz - bz[t]
+                    length = ul[t]
+                    r1 = br[t]
+                    r2 = br[t + 1]
+                    si = bri[t] + bri[t + 1]
+                    tt = d1x * ux[t] + d1y * uy[t] + d1z * uz[t]
+                    ss = length - tt
+                    qx = d1x - tt * ux[t]
+                    qy = d1y - tt * uy[t]
+                    qz = d1z - tt * uz[t]
+                    rho2 = qx * qx + qy * qy + qz * qz
+                    ssum = r1 + r2
+                    if tt > 0.0 and ss > 0.0:
+                        fn = (si - length) * (r1 + tt) * (r2 + ss)
+                        fd = rho2 * (si + length)
+                    else:
+                        fn = (ssum + length) * (si - length)
+                        fd = (ssum - length) * (si + length)
+                    bnum[t] *= fn
+                    bden[t] *= fd
+        scale = 1.0 / nk
         for j in range(m):
-            prod = 1.0
-            for k in range(nk):
-                prod *= _coef_ratio(mp[i, k, 0], mp[i, k, 1], mp[i, k, 2], seg_a[j, 0], seg_a[j, 1],
-                                    seg_a[j, 2], seg_b[j, 0], seg_b[j, 1], seg_b[j, 2])
-            out[i, j] = math.log(prod) / nk
+            out[i, j] = math.log(num[j] / den[j]) * scale
 
 
 @numba.njit(parallel=True, cache=True, fastmath=True, error_model="numpy", boundscheck=False)
@@ -150,7 +214,7 @@ def _field_kernel(pts, vert, sdat, blocks, out):  # pragma: no cover - compiled
 
     Segments are stored as polylines: segment k joins vertices k and k+1 of ``vert``
     (rows x, y, z; shape (3, nv)); ``sdat[:, k]`` = 2L, L, q_re, q_im of that segment.
-    ``blocks[b] = (k0, k1)``: segments k0..k1-1 of one polyline, at most _SEGMENT_BLOCK.
+    ``blocks[b] = (k0, k1, .)``: segments k0..k1-1 of one polyline, at most _SEGMENT_BLOCK.
     Distances to a vertex (and to its image) are computed once and shared by the two
     segments meeting there: 2 square roots + 1 division per segment-point pair.
     out[i, c, 0/1]: real/imag part of component c.
@@ -418,10 +482,17 @@ def matching_matrix(segments: SegmentSet) -> np.ndarray:
         :func:`potential_coefficients` for segment j [V m/C].
     """
     mp = np.ascontiguousarray(matching_points(segments))
+    a = np.asarray(segments.start_m, dtype=float)
+    b = np.asarray(segments.end_m, dtype=float)
+    vert, k, blocks = _polylines(a, b)
+    d = b - a
+    length = np.linalg.norm(d, axis=1)
+    sdir = np.zeros((4, vert.shape[1]))
+    sdir[0:3, k] = (d / length[:, None]).T
+    sdir[3, k] = length
     m = mp.shape[0]
     out = np.empty((m, m))
-    _matching_matrix_kernel(mp, np.ascontiguousarray(segments.start_m, dtype=float),
-                            np.ascontiguousarray(segments.end_m, dtype=float), out)
+    _matching_matrix_kernel(mp, vert, sdir, blocks, out)
     out *= K_E
     return out
 
@@ -511,50 +582,60 @@ def _check_charges(charges, segments: SegmentSet) -> np.ndarray:
     return q.astype(complex)
 
 
-def _pack_segments(segments: SegmentSet, charges: np.ndarray):
-    """Polyline tables for the field kernel (charged segments only).
-
-    Consecutive segments sharing an end point (``start_m[j] == end_m[j-1]``) form one
-    polyline; the vertices of all polylines are stacked, and each polyline is cut into
-    blocks of at most ``_SEGMENT_BLOCK`` segments.
+def _polylines(a: np.ndarray, b: np.ndarray):
+    """Stack consecutive segments that share an end point (``a[j] == b[j-1]``) into polylines.
 
     Returns
     -------
     vert : ndarray, shape (3, nv)
         Vertex coordinates [m].
+    k : int ndarray, shape (m,)
+        Index of each segment's first vertex (its second is ``k + 1``).
+    blocks : int64 ndarray, shape (nb, 3)
+        ``(k0, k1, j0)``: segments ``k0..k1-1`` (vertex numbering) of one polyline, at most
+        ``_SEGMENT_BLOCK`` of them, are the input segments ``j0..j0+k1-k0-1``.
+    """
+    m = a.shape[0]
+    new_line = np.ones(m, dtype=bool)
+    if m > 1:
+        new_line[1:] = ~np.all(a[1:] == b[:-1], axis=1)
+    k = np.arange(m) + np.cumsum(new_line) - 1
+    vert = np.empty((3, m + int(new_line.sum())))
+    vert[:, k] = a.T
+    vert[:, k + 1] = b.T
+    blocks = []
+    starts = np.flatnonzero(new_line)
+    for s0, s1 in zip(starts, np.append(starts[1:], m)):
+        for j0 in range(s0, s1, _SEGMENT_BLOCK):
+            j1 = min(j0 + _SEGMENT_BLOCK, s1)
+            blocks.append((k[j0], k[j1 - 1] + 1, j0))
+    return vert, k, np.array(blocks, dtype=np.int64).reshape(-1, 3)
+
+
+def _pack_segments(segments: SegmentSet, charges: np.ndarray):
+    """Polyline tables of the charged segments for the field kernel.
+
+    Returns
+    -------
+    vert : ndarray, shape (3, nv)
+        Vertex coordinates [m] (see :func:`_polylines`).
     sdat : ndarray, shape (4, nv)
         Per segment (indexed by its first vertex): 2L, L [m], q_re, q_im [C/m].
-    blocks : int64 ndarray, shape (nb, 2)
-        First and one-past-last segment (= vertex) index of each block.
+    blocks : int64 ndarray, shape (nb, 3)
+        Segment blocks, see :func:`_polylines`.
     """
     mask = _active(segments) & (charges != 0)
     a = np.asarray(segments.start_m, dtype=float)[mask]
     b = np.asarray(segments.end_m, dtype=float)[mask]
     q = charges[mask]
-    m = a.shape[0]
-    new_line = np.ones(m, dtype=bool)
-    if m > 1:
-        new_line[1:] = ~np.all(a[1:] == b[:-1], axis=1)
-    line_no = np.cumsum(new_line) - 1                 # polyline of each segment
-    k = np.arange(m) + line_no                        # first-vertex index of each segment
-    nv = m + int(new_line.sum())
-    vert = np.empty((3, nv))
-    vert[:, k] = a.T
-    vert[:, k + 1] = b.T
+    vert, k, blocks = _polylines(a, b)
     length = np.linalg.norm(b - a, axis=1)
-    sdat = np.zeros((4, nv))
+    sdat = np.zeros((4, vert.shape[1]))
     sdat[0, k] = 2.0 * length
     sdat[1, k] = length
     sdat[2, k] = q.real
     sdat[3, k] = q.imag
-    blocks = []
-    starts = np.flatnonzero(new_line)
-    ends = np.append(starts[1:], m)
-    for s0, s1 in zip(starts, ends):
-        for j0 in range(s0, s1, _SEGMENT_BLOCK):
-            j1 = min(j0 + _SEGMENT_BLOCK, s1)
-            blocks.append((k[j0], k[j1 - 1] + 1))
-    return vert, sdat, np.array(blocks, dtype=np.int64).reshape(-1, 2)
+    return vert, sdat, blocks
 
 
 def _raise_if_inside(pts, segments: SegmentSet, offset: int = 0) -> None:

@@ -194,17 +194,42 @@ def _field_reference_numpy(points, segments, charges):
 
 
 def test_kernel_against_independent_numpy_form_with_blocking():
-    # More segments than one segment block (256) and points not a multiple of the point block (64):
-    # exercises the cache-blocked loops; reference is the parallel/perpendicular decomposition.
+    # A polyline longer than one segment block (256) and a point count that is not a multiple
+    # of the point block (64) exercise the cache-blocked loops; the reference is the
+    # parallel/perpendicular decomposition evaluated with plain numpy.
     rng = np.random.default_rng(5)
-    wires = [catenary_wire(300.0, 20.0 + 3 * k, 6.0 + k, 97, lateral_m=5.0 * k) for k in range(3)]
+    wires = [catenary_wire(300.0, 20.0 + 3 * k, 6.0 + k, n, lateral_m=5.0 * k) for k, n in enumerate((97, 300, 41))]
     seg = polyline_set(wires, [1.0, 2.0, 0.0], [0.02, 0.01, 0.005])
-    q = rng.normal(size=291) + 1j * rng.normal(size=291)
+    m = len(seg.wire_index)
+    q = rng.normal(size=m) + 1j * rng.normal(size=m)
     pts = np.column_stack([rng.uniform(-50, 350, 333), rng.uniform(-40, 50, 333), rng.uniform(0, 40, 333)])
     pts = pts[np.min(np.abs(pts[:, None, 2] - np.array([14.0, 17.0, 20.0])), axis=1) > 1.0]  # keep off the wires
     ref = _field_reference_numpy(pts, seg, q)
     got = e3.electric_field_segments(pts, seg, charges=q)
     np.testing.assert_allclose(got, ref, rtol=1e-9, atol=1e-9 * np.abs(ref).max())
+    # segments in any order (no shared vertices left): same field
+    perm = rng.permutation(m)
+    shuffled = SegmentSet(seg.start_m[perm], seg.end_m[perm], seg.current_a[perm], seg.wire_index[perm],
+                          seg.wire_voltage_v, seg.wire_radius_m, seg.wire_screened)
+    got2 = e3.electric_field_segments(pts, shuffled, charges=q[perm])
+    np.testing.assert_allclose(got2, ref, rtol=1e-9, atol=1e-9 * np.abs(ref).max())
+
+
+def test_matching_matrix_equals_mean_of_point_coefficients():
+    # Two implementations: the optimised square-matrix kernel (shared vertex distances, one
+    # log per entry) against the general point kernel averaged over the four matching points.
+    rng = np.random.default_rng(8)
+    wires = [catenary_wire(300.0, 20.0 + 3 * k, 6.0 + k, n, lateral_m=5.0 * k) for k, n in enumerate((30, 270, 9))]
+    seg = polyline_set(wires, [1.0, 2.0, 0.0], [0.02, 0.01, 0.005])
+    perm = np.concatenate([np.arange(30), 30 + rng.permutation(270), np.arange(300, 309)])
+    seg = SegmentSet(seg.start_m[perm], seg.end_m[perm], seg.current_a, seg.wire_index[perm],
+                     seg.wire_voltage_v, seg.wire_radius_m, seg.wire_screened)
+    p = e3.matching_matrix(seg)
+    mp = e3.matching_points(seg)
+    ref = e3.potential_coefficients(mp.reshape(-1, 3), seg).reshape(len(mp), 4, -1).mean(axis=1)
+    np.testing.assert_allclose(p, ref, rtol=1e-12, atol=1e-13 * np.abs(ref).max())
+    # diagonal close to the 2-D self coefficient of a straight wire, 2 ln(L/r) order (positive, largest in row)
+    assert (np.diag(p) >= p.max(axis=1) - 1e-9 * p.max()).all()
 
 
 # ------------------------------------------------------------------ 2-D image solution
@@ -256,6 +281,43 @@ def test_three_phase_line_with_earth_wire_matches_2d():
     np.testing.assert_allclose(e_got, e_ref, rtol=0, atol=1e-4 * e_ref.max())
     # peak ground-level field of a 400 kV flat line is a few kV/m (common practice, order of magnitude)
     assert 2e3 < e_ref.max() < 15e3
+
+
+def test_route_mid_span_matches_cross_section_engine():
+    # Reference: the 2-D engine (models.cross_section.evaluate_cross_section) for the same
+    # circuits, against a 6 km straight level line (20 spans of 300 m, sag 0) discretised by the
+    # route helper with 20 m segments; single subconductors so that both model the same wires.
+    from models.cross_section import evaluate_cross_section
+    from models.geometry import Bundle, Circuit, Conductor, CrossSection, EarthWire
+    from models.route.discretise import discretise_route
+    from models.route.types import Route, RouteCircuit, RouteConductor, RouteEarthWire, Support
+
+    bundle = Bundle(0.0286)
+    phases = (("L1", -9.0, 16.0), ("L2", 0.0, 16.0), ("L3", 9.0, 16.0))
+    section = CrossSection(
+        circuits=(Circuit("c1", "overhead", 400.0, 1000.0,
+                          tuple(Conductor(ph, off, h) for ph, off, h in phases), bundle),),
+        earth_wires=(EarthWire(0.0, 25.0, 0.0126),),
+    )
+    route = Route(
+        supports=tuple(Support(f"s{i}", 300.0 * i, 0.0) for i in range(21)),
+        circuits=(RouteCircuit("c1", "overhead", 400.0, 1000.0,
+                               tuple(RouteConductor(ph, off, h, 0.0) for ph, off, h in phases), bundle),),
+        earth_wires=(RouteEarthWire(0.0, 25.0, 0.0126, 0.0),),
+    )
+    seg = discretise_route(route, for_electric=True, max_segment_m=20.0)
+    offsets = np.linspace(-50.0, 50.0, 21)
+    ref = evaluate_cross_section(section, offsets, 1.0, 50.0).e_phasor_v_per_m
+    # route along +x: offset to the right looking from s0 to s20 is -y; mid-span of span 10
+    pts = np.column_stack([np.full(21, 3150.0), -offsets, np.full(21, 1.0)])
+    e = e3.electric_field_segments(pts, seg)
+    scale = np.abs(ref).max()
+    np.testing.assert_allclose(e[:, 2], ref[:, 1], rtol=0, atol=1e-4 * scale)     # vertical
+    np.testing.assert_allclose(e[:, 1], -ref[:, 0], rtol=0, atol=1e-4 * scale)    # across: y = -offset
+    assert np.abs(e[:, 0]).max() < 1e-4 * scale
+    e_rms = np.sqrt((np.abs(e) ** 2).sum(axis=1))
+    ref_rms = np.sqrt((np.abs(ref) ** 2).sum(axis=1))
+    np.testing.assert_allclose(e_rms, ref_rms, rtol=0, atol=1e-4 * scale)
 
 
 # ------------------------------------------------------------------ Gauss's law
