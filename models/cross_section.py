@@ -52,27 +52,31 @@ def _assumptions(section: CrossSection, sources: Sources, frequency_hz: float,
     return tuple(items)
 
 
-def _observation_points(offset_m, height_m) -> np.ndarray:
-    """Broadcast offsets and heights into a flat (n, 2) float array."""
+def _observation_points(offset_m, height_m) -> tuple[np.ndarray, np.ndarray]:
+    """Broadcast offsets and heights into two flat, contiguous float arrays."""
     try:
         ox, oy = np.broadcast_arrays(np.asarray(offset_m, dtype=float), np.asarray(height_m, dtype=float))
     except (TypeError, ValueError) as exc:
         raise GeometryError("points", f"Input points (offset_m, height_m) must be real numbers of "
                                       f"broadcastable shapes; instead received an error: {exc}.") from None
-    return np.column_stack([ox.ravel(), oy.ravel()])
+    return np.ascontiguousarray(ox).ravel(), np.ascontiguousarray(oy).ravel()
 
 
-def _check_points(points: np.ndarray, start: int) -> None:
+def _check_points(ox: np.ndarray, oy: np.ndarray) -> None:
     """Reject non-finite points and points below ground (inside-a-wire: in the fused kernel)."""
-    if not np.isfinite(points).all():
-        i = int(np.argmax(~np.isfinite(points).all(axis=1)))
-        raise must_be(f"points[{start + i}]", "finite (offset_m, height_m)", tuple(points[i].tolist()),
-                      GeometryError)
-    below = points[:, 1] < 0.0
+    finite_x, finite_y = np.isfinite(ox), np.isfinite(oy)
+    if not (finite_x.all() and finite_y.all()):
+        i = int(np.argmax(~(finite_x & finite_y)))
+        raise must_be(f"points[{i}]", "finite (offset_m, height_m)", (float(ox[i]), float(oy[i])), GeometryError)
+    below = oy < 0.0
     if below.any():
         i = int(np.argmax(below))
-        raise must_be(f"points[{start + i}]", "at or above ground (height_m >= 0)",
-                      tuple(points[i].tolist()), GeometryError)
+        raise must_be(f"points[{i}]", "at or above ground (height_m >= 0)", (float(ox[i]), float(oy[i])),
+                      GeometryError)
+
+
+_TILE = 256
+"""Points per tile of the fused loop (accumulators stay in L1 cache)."""
 
 
 @functools.cache
@@ -84,59 +88,107 @@ def _fused_kernel():
     :func:`models.electric.electric_field_phasors` (line charge plus ground image)
     and :func:`models.magnetic.flux_density_phasors` (2-D Biot–Savart); the tests
     check this path against those kernels and against external references.
-    Serial (``nogil``, no ``parallel``): safe to call from several threads at once.
-    Returns the index of the first point strictly inside a wire (and the wire), or -1.
+
+    Points are taken in tiles of ``_TILE`` with the wire loop outside the point loop,
+    so the inner loop is independent across points and compiles to SIMD code
+    (``error_model="numpy"``: no zero-division checks; the inside check rejects any
+    point on a wire before its values are used, and points below ground, the only
+    ones that could meet an image, are rejected earlier).  fastmath is limited to
+    re-association and fused multiply-add.  Serial (``nogil``, no ``parallel``):
+    safe to call from several threads at once.
+
+    The loop returns ``(point, wire)`` of the first point strictly inside a wire, or
+    ``(-1, -1)``.  Wires ``[0, n_e)`` are overhead (E and B); ``[n_e, m)`` are
+    screened cables (B only).
     """
     import numba
 
-    @numba.njit(cache=True, nogil=True)
-    def fields(ox, oy, cx, cy, radius, q_re, q_im, i_re, i_im, e_out, b_out):
+    tile = _TILE
+
+    @numba.njit(cache=True, nogil=True, error_model="numpy", fastmath={"reassoc", "contract"})
+    def fields(ox, oy, cx, cy, radius, q_re, q_im, i_re, i_im, n_e, e_out, b_out):
         ke = 1.0 / (2.0 * np.pi * EPS0_F_PER_M)
         kb = MU0_H_PER_M / (2.0 * np.pi)
-        for p in range(ox.size):
-            x = ox[p]
-            y = oy[p]
-            exr = 0.0
-            exi = 0.0
-            eyr = 0.0
-            eyi = 0.0
-            bxr = 0.0
-            bxi = 0.0
-            byr = 0.0
-            byi = 0.0
-            for k in range(cx.size):
-                dx = x - cx[k]
-                dy = y - cy[k]
-                dx2 = dx * dx
-                r2 = dx2 + dy * dy
-                if r2 < radius[k] * radius[k]:
-                    return p, k
-                if q_re[k] != 0.0 or q_im[k] != 0.0:
-                    dyi = y + cy[k]            # E: charge at (x_k, y_k), image -q at (x_k, -y_k)
-                    r2i = dx2 + dyi * dyi
-                    w = 1.0 / (r2 * r2i)       # one division for both reciprocals
-                    inv = r2i * w
-                    inv_i = r2 * w
-                else:
-                    inv = 1.0 / r2
-                    inv_i = 0.0
-                gx = dy * inv                  # B: (-dy, dx) / r^2 times I
-                gy = dx * inv
-                bxr -= i_re[k] * gx
-                bxi -= i_im[k] * gx
-                byr += i_re[k] * gy
-                byi += i_im[k] * gy
-                if inv_i != 0.0:
-                    fx = dx * (inv - inv_i)
-                    fy = gx - dyi * inv_i
-                    exr += q_re[k] * fx
-                    exi += q_im[k] * fx
-                    eyr += q_re[k] * fy
-                    eyi += q_im[k] * fy
-            e_out[p, 0] = complex(ke * exr, ke * exi)
-            e_out[p, 1] = complex(ke * eyr, ke * eyi)
-            b_out[p, 0] = complex(kb * bxr, kb * bxi)
-            b_out[p, 1] = complex(kb * byr, kb * byi)
+        n = ox.size
+        m_all = cx.size
+        exr = np.empty(tile)
+        exi = np.empty(tile)
+        eyr = np.empty(tile)
+        eyi = np.empty(tile)
+        bxr = np.empty(tile)
+        bxi = np.empty(tile)
+        byr = np.empty(tile)
+        byi = np.empty(tile)
+        gap = np.empty(tile)          # min over wires of (r^2 - radius^2); < 0: inside
+        for t0 in range(0, n, tile):
+            m = min(tile, n - t0)
+            for j in range(m):
+                exr[j] = 0.0
+                exi[j] = 0.0
+                eyr[j] = 0.0
+                eyi[j] = 0.0
+                bxr[j] = 0.0
+                bxi[j] = 0.0
+                byr[j] = 0.0
+                byi[j] = 0.0
+                gap[j] = np.inf
+            for k in range(m_all):
+                xk = cx[k]
+                yk = cy[k]
+                rr = radius[k] * radius[k]
+                ir = i_re[k]
+                ii = i_im[k]
+                if k < n_e:                   # overhead wire: E and B
+                    qr = q_re[k]
+                    qi = q_im[k]
+                    for j in range(m):
+                        dx = ox[t0 + j] - xk
+                        dy = oy[t0 + j] - yk
+                        dx2 = dx * dx
+                        r2 = dx2 + dy * dy
+                        gap[j] = min(gap[j], r2 - rr)
+                        dyi = oy[t0 + j] + yk           # image of the wire at (x_k, -y_k)
+                        r2i = dx2 + dyi * dyi
+                        w = 1.0 / (r2 * r2i)            # one division for both reciprocals
+                        inv = r2i * w
+                        inv_i = r2 * w
+                        gx = dy * inv                   # B: I (-dy, dx) / r^2
+                        gy = dx * inv
+                        bxr[j] -= ir * gx
+                        bxi[j] -= ii * gx
+                        byr[j] += ir * gy
+                        byi[j] += ii * gy
+                        fx = dx * (inv - inv_i)         # E: charge q at the wire, -q at its image
+                        fy = gx - dyi * inv_i
+                        exr[j] += qr * fx
+                        exi[j] += qi * fx
+                        eyr[j] += qr * fy
+                        eyi[j] += qi * fy
+                else:                             # screened cable: B only
+                    for j in range(m):
+                        dx = ox[t0 + j] - xk
+                        dy = oy[t0 + j] - yk
+                        r2 = dx * dx + dy * dy
+                        gap[j] = min(gap[j], r2 - rr)
+                        inv = 1.0 / r2
+                        gx = dy * inv
+                        gy = dx * inv
+                        bxr[j] -= ir * gx
+                        bxi[j] -= ii * gx
+                        byr[j] += ir * gy
+                        byi[j] += ii * gy
+            for j in range(m):
+                if gap[j] < 0.0:              # find the wire for the error message
+                    p = t0 + j
+                    for k in range(m_all):
+                        dx = ox[p] - cx[k]
+                        dy = oy[p] - cy[k]
+                        if dx * dx + dy * dy < radius[k] * radius[k]:
+                            return p, k
+                e_out[t0 + j, 0] = complex(ke * exr[j], ke * exi[j])
+                e_out[t0 + j, 1] = complex(ke * eyr[j], ke * eyi[j])
+                b_out[t0 + j, 0] = complex(kb * bxr[j], kb * bxi[j])
+                b_out[t0 + j, 1] = complex(kb * byr[j], kb * byi[j])
         return -1, -1
 
     return fields
@@ -163,8 +215,11 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
         of overhead conductors are modelled with the Deri complex-depth image;
         when None (default) they are neglected.
     chunk_size : int, default 65536
-        Points evaluated per block.  Working memory grows with ``chunk_size``,
-        not with the number of points (the output itself is 64 bytes per point).
+        Points handed to the compiled loop per call.  The loop itself works in
+        fixed tiles of 256 points; ``chunk_size`` bounds the temporaries of the
+        earth-return term.  Beyond the output (E and B: 64 bytes per point, plus
+        16 for ``points_m``) memory use does not grow with the number of points,
+        apart from one flat float copy of broadcast inputs.
 
     Returns
     -------
@@ -206,35 +261,37 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
         raise must_be("chunk_size", "an integer >= 1", chunk_size, GeometryError)
     frequency_hz = float(frequency_hz)
     sources = build_sources(section)
-    points = _observation_points(offset_m, height_m)
+    ox, oy = _observation_points(offset_m, height_m)
+    _check_points(ox, oy)
 
     oh = sources.overhead          # E system: overhead wires only (screened cables give no E)
+    order = np.concatenate([np.flatnonzero(oh), np.flatnonzero(~oh)])   # overhead wires first
+    n_e = int(oh.sum())
     charges = np.zeros(sources.x_m.size, dtype=complex)
-    charges[oh] = line_charges(sources.x_m[oh], sources.y_m[oh], sources.radius_m[oh], sources.voltage_v[oh])
+    charges[:n_e] = line_charges(sources.x_m[oh], sources.y_m[oh], sources.radius_m[oh], sources.voltage_v[oh])
     p = None if rho is None else complex_depth_m(rho, frequency_hz)
-    wires = (sources.x_m, sources.y_m, sources.radius_m, np.ascontiguousarray(charges.real),
-             np.ascontiguousarray(charges.imag), np.ascontiguousarray(sources.current_a.real),
-             np.ascontiguousarray(sources.current_a.imag))
+    current = sources.current_a[order]
+    wires = (sources.x_m[order], sources.y_m[order], sources.radius_m[order],
+             np.ascontiguousarray(charges.real), np.ascontiguousarray(charges.imag),
+             np.ascontiguousarray(current.real), np.ascontiguousarray(current.imag), n_e)
 
-    n = points.shape[0]
+    n = ox.size
     e_out = np.empty((n, 2), dtype=complex)
     b_out = np.empty((n, 2), dtype=complex)
     kernel = _fused_kernel()
     for start in range(0, n, int(chunk_size)):
         stop = min(start + int(chunk_size), n)
-        block = points[start:stop]
-        _check_points(block, start)
-        ox, oy = np.ascontiguousarray(block[:, 0]), np.ascontiguousarray(block[:, 1])
-        i, k = kernel(ox, oy, *wires, e_out[start:stop], b_out[start:stop])
+        i, k = kernel(ox[start:stop], oy[start:stop], *wires, e_out[start:stop], b_out[start:stop])
         if i >= 0:
-            raise must_be(f"points[{start + i}]",
-                          f"outside the conductors (this point lies inside {sources.fields[k]})",
-                          tuple(block[i].tolist()), GeometryError)
+            i += start
+            raise must_be(f"points[{i}]",
+                          f"outside the conductors (this point lies inside {sources.fields[order[k]]})",
+                          (float(ox[i]), float(oy[i])), GeometryError)
         if p is not None:
-            b_out[start:stop] += earth_return_phasors(ox, oy, sources.x_m[oh], sources.y_m[oh],
-                                                      sources.current_a[oh], p)
+            b_out[start:stop] += earth_return_phasors(ox[start:stop], oy[start:stop], sources.x_m[oh],
+                                                      sources.y_m[oh], sources.current_a[oh], p)
     return FieldResult(
-        points_m=points,
+        points_m=np.column_stack([ox, oy]),
         frequency_hz=frequency_hz,
         e_phasor_v_per_m=e_out,
         b_phasor_t=b_out,

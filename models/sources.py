@@ -462,19 +462,18 @@ def _check_overlaps(envelopes: list[tuple[float, float, float, str]]) -> None:
     """Raise GeometryError for the first pair of conductors whose outer circles touch or overlap."""
     if len(envelopes) < 2:
         return
-    x = np.array([e[0] for e in envelopes])
-    y = np.array([e[1] for e in envelopes])
-    r = np.array([e[2] for e in envelopes])
-    dist = np.hypot(x[:, None] - x[None, :], y[:, None] - y[None, :])
-    clash = dist <= r[:, None] + r[None, :]
-    clash &= np.triu(np.ones_like(clash), k=1)
-    if not clash.any():
+    x, y, r = (np.array([e[c] for e in envelopes]) for c in range(3))
+    ia, ib = np.triu_indices(len(envelopes), k=1)          # every pair once, row-major order
+    dist = np.hypot(x[ia] - x[ib], y[ia] - y[ib])
+    clash = np.flatnonzero(dist <= r[ia] + r[ib])
+    if clash.size == 0:
         return
-    a, b = (int(v) for v in np.argwhere(clash)[0])
-    what = "coincident with" if dist[a, b] == 0.0 else "overlapping"
+    first = clash[0]
+    a, b = int(ia[first]), int(ib[first])
+    d = float(dist[first])
+    what = "coincident with" if d == 0.0 else "overlapping"
     raise GeometryError(
         envelopes[b][3],
         f"Input {envelopes[b][3]} must be clear of {envelopes[a][3]} (centre distance > "
-        f"{r[a] + r[b]!r} m); instead received a conductor {what} it "
-        f"(centre distance {float(dist[a, b])!r} m).",
+        f"{float(r[a] + r[b])!r} m); instead received a conductor {what} it (centre distance {d!r} m).",
     )
