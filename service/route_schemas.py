@@ -19,6 +19,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, post_load, validate, validates_schema
 from shapely.geometry import LineString
 
@@ -356,6 +357,16 @@ class RouteAssessmentRequest:
     soil_resistivity_ohm_m: float | None = None
 
 
+def _path_length_estimate_m(path: PathSet, geographic: bool) -> float:
+    """Path length [m]; in lon/lat by the local equirectangular scale (for the point-count check only)."""
+    if not geographic:
+        return float(path.geometry.length)
+    xy = np.radians(np.asarray(path.geometry.coords, dtype=float))
+    dx = np.diff(xy[:, 0]) * np.cos(0.5 * (xy[1:, 1] + xy[:-1, 1]))
+    dy = np.diff(xy[:, 1])
+    return float(np.sum(np.hypot(dx, dy)) * _EARTH_RADIUS_M)
+
+
 def _grid_points_estimate(grid: GridSet, geographic: bool) -> float:
     minx, miny, maxx, maxy = grid.bbox
     if geographic:
@@ -400,20 +411,34 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
         if geographic:
             self._check_lon_lat(data)
         cap = self.max_route_points
-        if "receptors" in data and len(data["receptors"]) > cap:
-            raise ValidationError({"receptors": {"features": [
-                f"{len(data['receptors'])} receptors given; at most {cap} are allowed."]}})
+        counts: dict[str, float] = {}
+        if "receptors" in data:
+            counts["receptors"] = len(data["receptors"])
+            if counts["receptors"] > cap:
+                raise ValidationError({"receptors": {"features": [
+                    f"{len(data['receptors'])} receptors given; at most {cap} are allowed."]}})
+        if "path" in data:
+            counts["path"] = _path_length_estimate_m(data["path"], geographic) / data["path"].step_m + 2
+            if counts["path"] > cap:
+                raise ValidationError({"path": {"step_m": [
+                    f"The path has about {counts['path']:.0f} points; at most {cap} are allowed per request."]}})
         if "lateral_profile" in data:
             lp = data["lateral_profile"]
-            n = (lp.to_m - lp.from_m) / lp.step_m + 2
-            if n > cap:
+            counts["lateral_profile"] = (lp.to_m - lp.from_m) / lp.step_m + 2
+            if counts["lateral_profile"] > cap:
                 raise ValidationError({"lateral_profile": {"step_m": [
-                    f"The lateral profile has about {n:.0f} points; at most {cap} are allowed per request."]}})
+                    f"The lateral profile has about {counts['lateral_profile']:.0f} points; at most {cap} are "
+                    "allowed per request."]}})
         if "grid" in data:
-            n = _grid_points_estimate(data["grid"], geographic)
-            if n > cap:
+            counts["grid"] = _grid_points_estimate(data["grid"], geographic)
+            if counts["grid"] > cap:
                 raise ValidationError({"grid": {"resolution_m": [
-                    f"The grid has about {n:.0f} points; at most {cap} are allowed per request."]}})
+                    f"The grid has about {counts['grid']:.0f} points; at most {cap} are allowed per request."]}})
+        total = sum(counts.values())
+        if total > cap:
+            largest = max(counts, key=counts.get)
+            raise ValidationError({largest: [f"The evaluation sets together have about {total:.0f} points; at most "
+                                             f"{cap} are allowed per request."]})
 
     @staticmethod
     def _check_lon_lat(data: dict[str, Any]) -> None:
@@ -450,6 +475,26 @@ def _nest(where: dict, message: str) -> dict:
     for key, value in where.items():
         out[key] = [message] if value is None else _nest(value, message)
     return out
+
+
+def geometry_kind(body: Any) -> str:
+    """``"route"`` or ``"cross_section"``: which geometry an assessment body describes.
+
+    A body that is not an object is left to the cross-section schema (it reports the type).
+
+    :raise marshmallow.ValidationError: when the body has both ``route`` and
+        ``cross_section``, or neither (422 naming the members).
+    """
+    if not isinstance(body, dict):
+        return "cross_section"
+    has_route, has_section = "route" in body, "cross_section" in body
+    if has_route and has_section:
+        raise ValidationError({"route": ["Give either cross_section (a 2-D section) or route (a line in map "
+                                         "coordinates), not both."]})
+    if not has_route and not has_section:
+        message = "Missing: give exactly one of cross_section (a 2-D section) or route (a line in map coordinates)."
+        raise ValidationError({"cross_section": [message], "route": [message]})
+    return "route" if has_route else "cross_section"
 
 
 def load_route_request(body: Any, *, max_route_points: int, max_conductors: int) -> RouteAssessmentRequest:
