@@ -422,6 +422,8 @@ def validate_cross_section(section: CrossSection, frequency_hz: float, *, field:
     models.errors.GeometryError: Input cross_section.circuits[0].conductors[2].height_m must be > 0.015 m (conductor radius plus bundle radius, clear of the ground) for an overhead conductor; instead received 0.01.
     """
     validate_frequency(frequency_hz)
+    if not isinstance(section, CrossSection):
+        raise must_be(field, "a CrossSection", type(section).__name__, GeometryError)
     if not section.circuits:
         raise must_be(f"{field}.circuits", "a non-empty list of circuits", [], GeometryError)
     envelopes: list[tuple[float, float, float, str]] = []  # x, y, outer radius, path

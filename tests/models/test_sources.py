@@ -207,6 +207,8 @@ def section_with(**changes):
         pytest.param(section_with(), float("nan"), LoadingError, r"frequency_hz", id="frequency-nan"),
         pytest.param(CrossSection(()), 50.0, GeometryError, r"cross_section\.circuits must be a non-empty",
                      id="no-circuits"),
+        pytest.param({"circuits": []}, 50.0, GeometryError, r"cross_section must be a CrossSection",
+                     id="not-a-cross-section"),
     ],
 )
 def test_validation_errors(section, frequency_hz, error, match):
