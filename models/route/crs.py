@@ -153,7 +153,29 @@ def _directions_ok(parsed) -> bool:
 
 
 def check_lon_lat(lon_deg, lat_deg, field: str) -> None:
-    """Raise :class:`EngineInputError` unless every longitude is in [-180, 180] and latitude in [-90, 90] [deg]."""
+    """Check geographic positions against the RFC 7946 ranges.
+
+    Parameters
+    ----------
+    lon_deg, lat_deg : array_like
+        Longitudes and latitudes [deg].
+    field : str
+        Request field named in the error.
+
+    Raises
+    ------
+    EngineInputError
+        Unless every longitude is finite and in [-180, 180] and every latitude in
+        [-90, 90] (RFC 7946 sec. 4).
+
+    Examples
+    --------
+    >>> check_lon_lat([9.0, -179.5], [45.0, -12.0], "route.supports")
+    >>> check_lon_lat([190.0], [45.0], "path.geometry")
+    Traceback (most recent call last):
+    ...
+    models.errors.EngineInputError: Input path.geometry longitude must be within [-180, 180] deg; instead received 190.0.
+    """
     lon = np.asarray(lon_deg, dtype=float)
     lat = np.asarray(lat_deg, dtype=float)
     bad_lon = ~np.isfinite(lon) | (np.abs(lon) > 180.0)

@@ -267,7 +267,21 @@ def lateral_profile_points(route_m: Route, spec: LateralProfileSet, *, max_point
 
 
 def receptor_points(x_m, y_m, height_m, *, field_prefix: str = "receptors.features") -> np.ndarray:
-    """Receptor observation points ``(n, 3)`` [m] from plan positions and heights [m]."""
+    """Receptor observation points from plan positions and heights.
+
+    Parameters
+    ----------
+    x_m, y_m : array_like, shape (n,)
+        Plan positions in the working metre plane [m].
+    height_m : array_like, shape (n,)
+        Heights above ground [m], finite and >= 0 (error field
+        ``receptors.features[i].properties.height_m``).
+
+    Returns
+    -------
+    ndarray, shape (n, 3)
+        Observation points [m].
+    """
     h = np.asarray(height_m, dtype=float)
     for i, hi in enumerate(h.ravel()):
         _height(float(hi), f"{field_prefix}[{i}].properties.height_m")

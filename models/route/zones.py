@@ -242,7 +242,22 @@ def _coords_lists(geom_mapping):
 
 
 def to_request_geometry(zone_m: MultiPolygon, frame: WorkingFrame) -> MultiPolygon:
-    """Transform a working-plane MultiPolygon to the request CRS, valid and RFC 7946 oriented."""
+    """Transform a working-plane MultiPolygon to the request CRS, valid and RFC 7946 oriented.
+
+    Parameters
+    ----------
+    zone_m : shapely.MultiPolygon
+        Zone in working metres [m].
+    frame : WorkingFrame
+        Request CRS <-> working plane.
+
+    Returns
+    -------
+    shapely.MultiPolygon
+        Vertices transformed one by one (zone edges are already dense, about half a
+        grid cell), then :func:`clean_multipolygon` again, since a transformation may
+        move rings enough to touch; unchanged when ``frame`` does not transform.
+    """
     if zone_m.is_empty or not frame.transforms:
         return zone_m
 
@@ -254,7 +269,18 @@ def to_request_geometry(zone_m: MultiPolygon, frame: WorkingFrame) -> MultiPolyg
 
 
 def geojson_geometry(geom: MultiPolygon) -> dict:
-    """RFC 7946 geometry object of a MultiPolygon (``{"type": "MultiPolygon", "coordinates": []}`` when empty)."""
+    """RFC 7946 geometry object of a MultiPolygon, with plain lists of floats.
+
+    An empty zone is ``{"type": "MultiPolygon", "coordinates": []}`` (an empty geometry,
+    RFC 7946 sec. 3.1).
+
+    Examples
+    --------
+    >>> geojson_geometry(MultiPolygon())
+    {'type': 'MultiPolygon', 'coordinates': []}
+    >>> geojson_geometry(MultiPolygon([Polygon([(0, 0), (1, 0), (0, 1)])]))["coordinates"]
+    [[[[0.0, 0.0], [1.0, 0.0], [0.0, 1.0], [0.0, 0.0]]]]
+    """
     if geom.is_empty:
         return {"type": "MultiPolygon", "coordinates": []}
     return _coords_lists(shapely.geometry.mapping(geom))
