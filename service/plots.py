@@ -18,6 +18,7 @@ returns one self-contained ``<svg>`` element as text, ready to inline in HTML:
 
 from __future__ import annotations
 
+import hashlib
 import html
 import io
 import math
@@ -71,6 +72,9 @@ def _svg_text(fig: Figure, prefix: str, title: str) -> str:
     svg = svg[svg.index("<svg"):]  # drop XML declaration and DOCTYPE (not allowed inline)
     svg = re.sub(r"<metadata>.*?</metadata>\s*", "", svg, flags=re.S)
     svg = re.sub(r"<!--.*?-->\s*", "", svg, flags=re.S)  # text comments repeat labels; not needed
+    # Ids unique per figure content, so that several figures inline in one page never share one
+    # (a shared glyph or clip-path id would make one figure draw with another's definitions).
+    prefix = f"{prefix}-{hashlib.sha256(svg.encode()).hexdigest()[:10]}"
     ids: dict[str, str] = {}
     for match in re.finditer(r'\bid="([^"]+)"', svg):
         ids.setdefault(match.group(1), f"{prefix}-{len(ids) + 1}")

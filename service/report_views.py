@@ -109,7 +109,8 @@ def get_report(assessment_id: uuid.UUID) -> Response:
     mimetype = _negotiate()
     report = record.report()
     if mimetype == "application/json":
-        return _finish(json.dumps(report, ensure_ascii=False), "application/json", record, "json")
+        served = record.served_json() if hasattr(record, "served_json") else json.dumps(report, ensure_ascii=False)
+        return _finish(served, "application/json", record, "json")
     if mimetype == reports.CSV_MIME:
         text = _CACHE.get((record.digest, "csv"), lambda: reports.render_csv(report))
         return _finish(text, "text/csv", record, "csv", filename=f"assessment-{assessment_id}.csv")
@@ -137,14 +138,28 @@ def get_geojson(assessment_id: uuid.UUID) -> Response:
 
 
 def _recompute(request_json: str) -> dict[str, Any]:
-    """The report the current engine and catalogue give for a stored canonical request."""
+    """The report the current engine and catalogue give for a stored canonical request.
+
+    The stored request passes through the same schema as a new one (cross-section or
+    route), so a request that would be refused today is reported as not recomputable.
+    """
+    from .route_schemas import DEFAULT_MAX_ROUTE_POINTS, geometry_kind
+
+    body = json.loads(request_json)
+    config = current_app.config
+    if geometry_kind(body) == "route":
+        from .route_assessment import build_route_report
+        from .route_schemas import load_route_request
+
+        max_points = int(config.get("MAX_ROUTE_POINTS", DEFAULT_MAX_ROUTE_POINTS))
+        route_request = load_route_request(body, max_route_points=max_points,
+                                           max_conductors=config["MAX_CONDUCTORS"])
+        return build_route_report(route_request, max_points=max_points)
     from .assessment import build_report
     from .schemas import load_assessment_request
 
-    body = json.loads(request_json)
-    loaded = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
-                                     max_conductors=current_app.config["MAX_CONDUCTORS"])
-    return build_report(loaded)
+    return build_report(load_assessment_request(body, max_points=config["MAX_POINTS"],
+                                                max_conductors=config["MAX_CONDUCTORS"]))
 
 
 def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:

@@ -29,6 +29,8 @@ from . import plots
 HTML_MIME = "text/html"
 CSV_MIME = "text/csv"
 GEOJSON_MIME = "application/geo+json"
+MAX_GEOJSON_GRID_POINTS = 20_000
+"""Grids with more nodes are left out of the GeoJSON export (they are in the CSV)."""
 
 # General engineering facts about the models, stated in every report (check-values.md
 # section 9, "Model limits to state in reports"; from memory / common practice).
@@ -78,7 +80,7 @@ def canonical_input_digest(report: Mapping[str, Any]) -> str:
 
 def is_route_report(report: Mapping[str, Any]) -> bool:
     """True for a route (3-D, map coordinates) assessment."""
-    return "route" in (report.get("input") or {}) or "results" in report
+    return report.get("kind") == "route" or "route" in (report.get("input") or {}) or "results" in report
 
 
 def _suffix(quantity: str) -> tuple[str, str]:
@@ -116,7 +118,7 @@ def _flatten(row: Mapping[str, Any], prefix: str = "") -> dict[str, Any]:
     return out
 
 
-def point_sets(report: Mapping[str, Any]) -> list[tuple[str, list[Mapping[str, Any]]]]:
+def point_sets(report: Mapping[str, Any], *, include_grid: bool = True) -> list[tuple[str, list[Mapping[str, Any]]]]:
     """Named lists of evaluated points: ``[("profile" | "points", rows)]`` for a cross-section,
     ``[("path", ...), ("lateral_profile", ...), ("receptors", ...), ("grid", ...)]`` for a route."""
     if not is_route_report(report):
@@ -128,12 +130,40 @@ def point_sets(report: Mapping[str, Any]) -> list[tuple[str, list[Mapping[str, A
         rows = results.get(name)
         if rows:
             sets.append((name, list(rows)))
-    grid = results.get("grid")
-    if isinstance(grid, Mapping) and isinstance(grid.get("points"), list):
-        sets.append(("grid", list(grid["points"])))
+    grid = results.get("grid") if include_grid else None
+    if isinstance(grid, Mapping):
+        rows = grid_rows(grid)
+        if rows:
+            sets.append(("grid", rows))
     elif isinstance(grid, list):
         sets.append(("grid", grid))
     return sets
+
+
+def grid_rows(grid: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Grid nodes as point rows (row-major, south to north): ``x``, ``y`` in the request CRS, values.
+
+    The route report's grid holds axes ``x_m``/``y_m`` (working plane) and ``e_kv_m``/``b_ut``
+    as ny x nx arrays; with a CRS transformation it also holds ``x``/``y`` per node.
+    """
+    if isinstance(grid.get("points"), list):
+        return list(grid["points"])
+    x_m, y_m = grid.get("x_m"), grid.get("y_m")
+    e, b = grid.get("e_kv_m"), grid.get("b_ut")
+    if not (isinstance(x_m, list) and isinstance(y_m, list) and isinstance(b, list)):
+        return []
+    xs, ys = grid.get("x"), grid.get("y")
+    rows = []
+    for j, yj in enumerate(y_m):
+        for i, xi in enumerate(x_m):
+            row: dict[str, Any] = {"x": xs[j][i] if isinstance(xs, list) else xi,
+                                   "y": ys[j][i] if isinstance(ys, list) else yj,
+                                   "height_m": grid.get("height_m")}
+            if isinstance(e, list):
+                row["e_kv_m"] = e[j][i]
+            row["b_ut"] = b[j][i]
+            rows.append(row)
+    return rows
 
 
 # --------------------------------------------------------------------------- CSV
@@ -175,18 +205,13 @@ def render_csv(report: Mapping[str, Any]) -> str:
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\r\n")
     writer.writerow(columns)
+    plain = columns[1:len(columns) - len(exposure)]
     for name, rows in flat_sets:
         for r in rows:
-            line = []
-            for col in columns:
-                if col == "set":
-                    line.append(name)
-                elif col.startswith("exposure_index:"):
-                    _, key, _, limit = next(e for e in exposure if e[0] == col)
-                    value = r.get(key)
-                    line.append(_csv_number(float(value) / limit) if isinstance(value, (int, float)) else "")
-                else:
-                    line.append(_csv_number(r.get(col)))
+            line = [name] + [_csv_number(r.get(col)) for col in plain]
+            for _, key, _, limit in exposure:
+                value = r.get(key)
+                line.append(_csv_number(float(value) / limit) if isinstance(value, (int, float)) else "")
             writer.writerow(line)
     return buf.getvalue()
 
@@ -229,6 +254,13 @@ def right_hand_rule(geometry: Mapping[str, Any]) -> dict[str, Any]:
 def _route_crs(report: Mapping[str, Any]) -> str | None:
     route = (report.get("input") or {}).get("route") or {}
     return route.get("crs")
+
+
+def _is_geographic(report: Mapping[str, Any]) -> bool:
+    crs = report.get("crs")
+    if isinstance(crs, Mapping) and isinstance(crs.get("geographic"), bool):
+        return crs["geographic"]
+    return is_geographic_crs(_route_crs(report))
 
 
 def is_geographic_crs(crs: str | None) -> bool:
@@ -283,8 +315,12 @@ def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
     for s in supports:
         features.append({"type": "Feature", "properties": {"kind": "support", "id": s.get("id")},
                          "geometry": {"type": "Point", "coordinates": [float(s["x"]), float(s["y"])]}})
+    omitted = 0
     for name, rows in point_sets(report):
         kind = "receptor" if name == "receptors" else name
+        if name == "grid" and len(rows) > MAX_GEOJSON_GRID_POINTS:
+            omitted = len(rows)
+            continue
         for row in rows:
             if "x" in row and "y" in row:
                 features.append(_point_feature(kind, row, exposure))
@@ -296,9 +332,13 @@ def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
                          "geometry": right_hand_rule(geom)})
     crs = _route_crs(report)
     collection: dict[str, Any] = {"type": "FeatureCollection", "features": features}
+    if omitted:
+        collection["grid_points_omitted"] = (
+            f"{omitted} grid points (more than {MAX_GEOJSON_GRID_POINTS}) are left out; the zones summarise "
+            "the grid, and the CSV export lists every node")
     collection["assessment"] = {"id": report.get("id"), "title": report.get("title"),
                                 "reference": report.get("reference"), "outcome": report.get("outcome")}
-    if not is_geographic_crs(crs):
+    if not _is_geographic(report):
         collection["coordinate_reference"] = (
             f"{crs}: projected coordinates in metres, as in the request (not RFC 7946 lon/lat)" if crs else
             "local coordinates in metres, as in the request (no CRS given; not RFC 7946 lon/lat)")
@@ -394,8 +434,39 @@ def _route_plan(report: Mapping[str, Any]) -> str | None:
             exceeds = any(isinstance(r.get(key), (int, float)) and float(r[key]) > limit
                           for _, key, _, limit in exposure_columns(report))
             receptors.append({**r, "exceeds": exceeds})
-    return plots.route_plan_svg(supports, path=path, receptors=receptors, zones=report.get("zones"),
-                                geographic=is_geographic_crs(_route_crs(report)))
+    return plots.route_plan_svg(supports, path=path, receptors=receptors, zones=_labelled_zones(report),
+                                geographic=_is_geographic(report))
+
+
+def _zone_label(props: Mapping[str, Any]) -> str:
+    quantity = props.get("quantity", "")
+    for key, unit in (("limit_ut", "µT"), ("limit_kv_m", "kV/m")):
+        if isinstance(props.get(key), (int, float)):
+            return f"{quantity} {format_number(props[key])} {unit} ({props.get('threshold_id', '')})"
+    return str(props.get("label") or props.get("threshold_id") or props.get("threshold") or "zone")
+
+
+def _labelled_zones(report: Mapping[str, Any]) -> dict[str, Any] | None:
+    zones = report.get("zones")
+    if not isinstance(zones, Mapping):
+        return None
+    return {"type": "FeatureCollection", "features": [
+        {**f, "properties": {**(f.get("properties") or {}), "label": _zone_label(f.get("properties") or {})}}
+        for f in zones.get("features", ()) or ()]}
+
+
+def _zone_rows(report: Mapping[str, Any]) -> list[dict[str, str]]:
+    rows = []
+    for f in ((report.get("zones") or {}).get("features") or ()):
+        p = f.get("properties") or {}
+        area = p.get("area_m2")
+        empty = area == 0 or not (f.get("geometry") or {}).get("coordinates")
+        rows.append({"label": _zone_label(p), "title": str(p.get("title", "")),
+                     "area": "–" if area is None else f"{float(area):,.0f} m²",
+                     "left": "not exceeded on the grid" if empty else _distance_text(p.get("width_left_m")),
+                     "right": "not exceeded on the grid" if empty else _distance_text(p.get("width_right_m")),
+                     "edge": "yes: widen the grid" if p.get("touches_grid_edge") else "no"})
+    return rows
 
 
 def _cross_section_source(report: Mapping[str, Any]) -> tuple[Mapping[str, Any] | None, str]:
@@ -490,7 +561,7 @@ def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
             "percent": f"{float(c.get('exposure_index', 0)) * 100:.0f} %",
             "margin": format_number(c.get(f"margin_{suffix}")),
             "where": (f"{float(c['max_offset_m']):+.1f} m, {float(c.get('max_height_m', 0)):.1f} m high"
-                      if c.get("max_offset_m") is not None else (c.get("max_location") or "–")),
+                      if c.get("max_offset_m") is not None else location_text(c.get("max_location"))),
             "left": _distance_text(c.get("distance_left_m")), "right": _distance_text(c.get("distance_right_m")),
             "note": _useful_note(c.get("distance_note", "")), "passes": bool(c.get("passes")),
         })
@@ -516,8 +587,8 @@ def _point_table(report: Mapping[str, Any], name: str, rows: Sequence[Mapping[st
     labels = {"id": "id", "name": "name", "x": "x", "y": "y", "distance_m": "distance (m)", "offset_m": "offset (m)",
               "height_m": "height (m)", "e_kv_m": "E (kV/m)", "b_ut": "B (µT)", "e_max_kv_m": "E max (kV/m)",
               "b_max_ut": "B max (µT)"}
-    body = [[format_number(rows[k].get(col), 6 if col in ("x", "y") else 4) for col in position_keys + value_keys]
-            for k in idx]
+    body = [[coordinate_text(rows[k][col]) if col in ("x", "y") and isinstance(rows[k].get(col), (int, float))
+             else format_number(rows[k].get(col)) for col in position_keys + value_keys] for k in idx]
     return {"name": name.replace("_", " "), "header": [labels[c] for c in position_keys + value_keys],
             "rows": body, "shown": len(idx), "total": len(rows)}
 
@@ -541,18 +612,39 @@ def _load_cases(report: Mapping[str, Any]) -> dict[str, Any] | None:
     return {"figure": figure, "table": table}
 
 
+def coordinate_text(value: Any) -> str:
+    """Map coordinate: 0.1 m for projected metres (|v| >= 1000), 6 decimals (about 0.1 m) for degrees."""
+    v = float(value)
+    return f"{v:.1f}" if abs(v) >= 1000 else f"{v:.6f}"
+
+
+def location_text(loc: Any) -> str:
+    """Where a value occurs, for people: "offset +10.0 m, 1.0 m above ground", "receptor house 12 (x, y)", ..."""
+    if not isinstance(loc, Mapping):
+        return "–" if loc is None else str(loc)
+    parts = []
+    kind = loc.get("set")
+    if kind == "receptors":
+        parts.append(f"receptor {loc.get('name') or loc.get('id')}")
+    elif kind == "path" and isinstance(loc.get("distance_m"), (int, float)):
+        parts.append(f"path, {float(loc['distance_m']):.1f} m along it")
+    elif kind == "grid":
+        parts.append("grid node")
+    if isinstance(loc.get("offset_m"), (int, float)):
+        parts.append(f"offset {float(loc['offset_m']):+.1f} m" + (" (lateral profile)" if kind else ""))
+    if kind and isinstance(loc.get("x"), (int, float)) and isinstance(loc.get("y"), (int, float)):
+        parts.append(f"at ({coordinate_text(loc['x'])}, {coordinate_text(loc['y'])})")
+    if isinstance(loc.get("height_m"), (int, float)):
+        parts.append(f"{float(loc['height_m']):.1f} m above ground")
+    return ", ".join(parts) or "–"
+
+
 def _maximum_text(maximum: Any, key: str, unit: str) -> str:
-    """"4.120 kV/m at offset +10.0 m" from a ``maxima`` entry (cross-section or route)."""
+    """"4.120 kV/m at offset +10.0 m, 1.0 m above ground" from a ``maxima`` entry (cross-section or route)."""
     if not isinstance(maximum, Mapping) or not isinstance(maximum.get(key), (int, float)):
         return "–"
-    text = f"{format_number(maximum[key])} {unit}"
-    if isinstance(maximum.get("offset_m"), (int, float)):
-        text += f" at offset {float(maximum['offset_m']):+.1f} m"
-    elif isinstance(maximum.get("x"), (int, float)) and isinstance(maximum.get("y"), (int, float)):
-        text += f" at ({format_number(maximum['x'], 8)}, {format_number(maximum['y'], 8)})"
-    if isinstance(maximum.get("height_m"), (int, float)):
-        text += f", {float(maximum['height_m']):.1f} m above ground"
-    return text
+    where = location_text({k: v for k, v in maximum.items() if k != key})
+    return f"{format_number(maximum[key])} {unit}" + (f" at {where}" if where != "–" else "")
 
 
 def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
@@ -563,7 +655,7 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
     route = is_route_report(report)
     right_of_way = data.get("right_of_way")
     figures = []
-    for name, rows in point_sets(report):
+    for name, rows in point_sets(report, include_grid=False):
         if name in ("profile", "points", "lateral_profile"):
             title = "Lateral profile" if name != "points" else "Field at the given points"
             if name == "lateral_profile" and isinstance(data.get("lateral_profile"), Mapping):
@@ -607,13 +699,14 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "drawing": drawing,
         "drawing_caption": section_caption,
         "plan": Markup(plan) if plan else None,
+        "zone_rows": _zone_rows(report) if route else [],
         "cases": cases,
         "assumption_summary": _assumption_summary(report),
         "assumptions": list(report.get("assumptions", ())),
         "model_limits": (() if route else MODEL_LIMITS_2D) + MODEL_LIMITS_COMMON,
         "cautions": list(report.get("cautions", ())),
         "circuits": _circuit_rows(section),
-        "tables": [_point_table(report, name, rows) for name, rows in point_sets(report) if name != "grid"],
+        "tables": [_point_table(report, name, rows) for name, rows in point_sets(report, include_grid=False)],
         "max_e": _maximum_text(maxima.get("e"), "value_kv_m", "kV/m"),
         "max_b": _maximum_text(maxima.get("b"), "value_ut", "µT"),
         "input_digest": canonical_input_digest(report),

@@ -14,6 +14,7 @@ import csv
 import io
 import json
 import math
+import re
 import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 from pathlib import Path
@@ -275,8 +276,18 @@ def test_geojson_refuses_cross_section(report):
 
 
 def test_route_report_html_has_plan_view():
-    page = reports.render_html(route_report())
-    assert 'id="plan"' in page and 'id="plot-path"' in page
+    rep = route_report()
+    rep["results"]["lateral_profile"] = [{"offset_m": float(o), "x": 9.105, "y": 45.2 + o * 1e-5, "height_m": 1.0,
+                                          "e_kv_m": 1.0 / (1 + o * o / 100), "b_ut": 2.0 / (1 + o * o / 400)}
+                                         for o in range(-50, 51, 5)]
+    page = reports.render_html(rep)
+    assert 'id="plan"' in page and 'id="plot-path"' in page and 'id="plot-lateral-profile"' in page
+    # Two profile figures, a plan and a drawing in one page: no element id may repeat, or one
+    # figure would be drawn with another's glyph and clip definitions.
+    ids = re.findall(r'\bid="([^"]+)"', page)
+    assert len(ids) == len(set(ids))
+    refs = set(re.findall(r'(?:href="#|url\(#)([^")]+)', page))
+    assert refs <= set(ids)
 
 
 @pytest.mark.parametrize("value, text", [(4.120042302090758, "4.120"), (200.00000000000003, "200.0"),
