@@ -191,3 +191,17 @@ def test_fused_path_matches_the_separate_kernels():
          + flux_density_phasors(x, y, src.x_m[~oh], src.y_m[~oh], src.current_a[~oh]))
     np.testing.assert_allclose(res.e_phasor_v_per_m, e, rtol=1e-12, atol=1e-12 * np.abs(e).max())
     np.testing.assert_allclose(res.b_phasor_t, b, rtol=1e-12, atol=1e-12 * np.abs(b).max())
+
+
+def test_concurrent_calls_from_threads_agree_with_a_serial_call():
+    # The compiled loops are serial and release the GIL (nogil): a threaded web worker may
+    # call the engine from several threads at once and must get identical numbers.
+    from concurrent.futures import ThreadPoolExecutor
+
+    x = np.linspace(-60, 60, 5001)
+    serial = evaluate_cross_section(flat_line(), x, 1.0, 50.0)
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        results = list(pool.map(lambda _: evaluate_cross_section(flat_line(), x, 1.0, 50.0), range(8)))
+    for res in results:
+        np.testing.assert_array_equal(res.e_phasor_v_per_m, serial.e_phasor_v_per_m)
+        np.testing.assert_array_equal(res.b_phasor_t, serial.b_phasor_t)
