@@ -70,8 +70,19 @@ def _cosh_minus_1(u):
 
 def _k(span_m, height_difference_m, c_m):
     """k = dh / (2 C sinh(L/2C)) of equation (2); 2 C sinh(L/2C) -> L as C -> inf."""
-    two_c_sinh = np.where(np.isinf(c_m), span_m, 2.0 * c_m * np.sinh(span_m / (2.0 * np.where(np.isinf(c_m), 1.0, c_m))))
-    return height_difference_m / two_c_sinh
+    return height_difference_m / _two_c_sinh(span_m, c_m)
+
+
+def _finite_c(c_m):
+    """C with inf replaced by 1e300 (same limits: 2 C sinh(L/2C) = L, sag 0) so no branch overflows."""
+    c = np.asarray(c_m, dtype=float)
+    return np.where(np.isinf(c), 1e300, c)
+
+
+def _two_c_sinh(span_m, c_m):
+    """2 C sinh(L / 2C) [m] (the chord-parallel length; L for a straight conductor)."""
+    c = _finite_c(c_m)
+    return 2.0 * c * np.sinh(np.asarray(span_m, float) / (2.0 * c))
 
 
 def level_span_sag_m(span_m, c_m):
@@ -98,9 +109,8 @@ def level_span_sag_m(span_m, c_m):
     >>> round(float(level_span_sag_m(500.0, 10_000.0)), 5)
     3.12516
     """
-    c = np.asarray(c_m, dtype=float)
-    with np.errstate(invalid="ignore"):
-        out = np.where(np.isinf(c), 0.0, c * _cosh_minus_1(np.asarray(span_m, float) / (2.0 * np.where(np.isinf(c), 1.0, c))))
+    c = _finite_c(c_m)
+    out = np.where(np.isinf(np.asarray(c_m, float)), 0.0, c * _cosh_minus_1(np.asarray(span_m, float) / (2.0 * c)))
     return out[()] if out.ndim == 0 else out
 
 
@@ -162,7 +172,7 @@ def low_point_x_m(span_m, height_difference_m, c_m):
     k = _k(L, np.asarray(height_difference_m, float), c)
     finite = ~np.isinf(c)
     straight = np.where(np.asarray(height_difference_m) > 0, 0.0, np.where(np.asarray(height_difference_m) < 0, L, L / 2.0))
-    out = np.where(finite, L / 2.0 - np.where(finite, c, 0.0) * np.arcsinh(k), straight)
+    out = np.where(finite, L / 2.0 - np.where(finite, c, 0.0) * np.arcsinh(np.where(finite, k, 0.0)), straight)
     return out[()] if out.ndim == 0 else out
 
 
@@ -240,10 +250,7 @@ def conductor_length_m(span_m, height_difference_m, c_m):
     >>> round(float(conductor_length_m(500.0, 0.0, 10_000.0)), 5)
     500.05208
     """
-    L = np.asarray(span_m, float)
-    c = np.asarray(c_m, float)
-    two_c_sinh = np.where(np.isinf(c), L, 2.0 * c * np.sinh(L / (2.0 * np.where(np.isinf(c), 1.0, c))))
-    out = np.hypot(np.asarray(height_difference_m, float), two_c_sinh)
+    out = np.hypot(np.asarray(height_difference_m, float), _two_c_sinh(span_m, c_m))
     return out[()] if out.ndim == 0 else out
 
 

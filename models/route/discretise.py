@@ -22,10 +22,11 @@ both).  The default 0.01 m gives < 1e-3 relative at 10 m from the conductors.
 Two flavours of :class:`~models.route.types.SegmentSet`:
 
 * **for B** (default): each bundle subconductor is its own wire carrying its
-  share I / n of the phase current, hung at the bundle positions of
-  :func:`models.sources.subconductor_offsets_m` in the plane perpendicular to the
-  span (horizontal across the line, and vertical), with the bundle's catenary
-  constant (subconductors held by spacers hang alike);
+  share I / n of the phase current (common practice), placed at the bundle
+  positions of :func:`models.sources.subconductor_offsets_m` in the plane
+  perpendicular to the span (horizontal across the line, and vertical) around
+  every vertex of the bundle centre's polyline: spacers keep the bundle's shape,
+  so all subconductors follow the centre's catenary;
 * **for E** (``for_electric=True``): each bundle is one wire along the bundle
   centre with the equivalent radius :func:`models.sources.equivalent_bundle_radius_m`.
 
@@ -44,7 +45,7 @@ from ..errors import GeometryError, must_be
 from ..geometry import Bundle, Circuit, Conductor, CrossSection, EarthWire
 from ..sources import build_sources, equivalent_bundle_radius_m
 from .catenary import CatenarySpan
-from .geometry import OffsetConvention, StrungWire, attachment_points_m, strung_wires
+from .geometry import OffsetConvention, StrungWire, offset_vectors, strung_wires
 from .types import Route, SegmentSet
 
 __all__ = ["DEFAULT_TOLERANCE_M", "discretise_route", "segments_for_span"]
@@ -100,25 +101,30 @@ def _as_cross_section(route: Route, electric: bool) -> CrossSection:
     return CrossSection(tuple(circuits), earth)
 
 
-def _wire_vertices(route: Route, parent: StrungWire, dx: float, dz: float, convention: OffsetConvention,
+def _wire_vertices(parent: StrungWire, dx: float, dz: float, vectors: np.ndarray,
                    tolerance_m: float, max_segment_m: float | None) -> tuple[np.ndarray, np.ndarray]:
-    """Polyline vertices of one (sub)wire along the route and the span index of each segment."""
-    if dx == 0.0 and dz == 0.0:
-        att = parent.attachment_m
-    else:
-        att = attachment_points_m(route, parent.offsets_m + dx, parent.heights_m + dz, convention)
-    pieces = [att[:1]]
+    """Polyline vertices of one (sub)wire along the route and the span index of each segment.
+
+    The bundle centre (``parent``) is cut into segments; a subconductor at (dx, dz) from the
+    centre follows it vertex by vertex at ``dx * v(t) + dz * z_hat``, ``v(t)`` the support
+    offset vectors interpolated along the span, so the bundle keeps its shape (spacers) and
+    each subconductor lies on the line parallel to the centre at offset ``offset_m + dx``.
+    """
+    att = parent.attachment_m
+    pieces = [att[:1] + [dx * vectors[0, 0], dx * vectors[0, 1], dz]]
     span_of = []
-    for i, pspan in enumerate(parent.spans):
+    for i, span in enumerate(parent.spans):
         a, b = att[i], att[i + 1]
-        length = math.hypot(b[0] - a[0], b[1] - a[1])
-        span = CatenarySpan(length, float(b[2] - a[2]), pspan.catenary_constant_m)
         n = segments_for_span(span, tolerance_m, max_segment_m)
         t = np.arange(1, n + 1) / n
         v = np.empty((n, 3))
         v[:, :2] = a[:2] + t[:, None] * (b[:2] - a[:2])
-        v[:, 2] = a[2] + span.height_m(t * length)
+        v[:, 2] = a[2] + span.height_m(t * span.span_m)
         v[-1] = b  # exact join with the next span
+        if dx != 0.0 or dz != 0.0:
+            vec = vectors[i] + t[:, None] * (vectors[i + 1] - vectors[i])
+            v[:, :2] += dx * vec
+            v[:, 2] += dz
         pieces.append(v)
         span_of.append(np.full(n, i))
     return np.concatenate(pieces), np.concatenate(span_of)
@@ -180,13 +186,14 @@ def discretise_route(
         raise must_be("max_segment_m", "a finite number > 0 m", max_segment_m, GeometryError)
     wires = strung_wires(route, convention=convention)
     by_path = {w.path: w for w in wires}
+    vectors = offset_vectors(route, convention)
     sources = build_sources(_as_cross_section(route, for_electric), field="route")
 
     starts, ends, currents, wire_idx, span_idx = [], [], [], [], []
     for w in range(len(sources.fields)):
         parent = by_path[sources.fields[w]]
-        verts, spans = _wire_vertices(route, parent, float(sources.x_m[w]), float(sources.y_m[w]),
-                                      convention, tol, max_segment_m)
+        verts, spans = _wire_vertices(parent, float(sources.x_m[w]), float(sources.y_m[w]), vectors,
+                                      tol, max_segment_m)
         starts.append(verts[:-1])
         ends.append(verts[1:])
         currents.append(np.full(len(spans), sources.current_a[w]))

@@ -7,7 +7,13 @@ the field at ``p`` is, with R1 = p - a, R2 = p - b::
 
 (the Biot–Savart integral in closed form [1]_; on the perpendicular bisector at
 distance d it reduces to mu0 I / (4 pi d) * 2 sin(theta), and for an infinitely
-long segment to mu0 I / (2 pi d)).  Currents are rms phasors: the kernel carries
+long segment to mu0 I / (2 pi d)).  Near a long segment R1 and R2 are almost
+opposite and |R1||R2| + R1 . R2 cancels (relative error ~ eps (L/d)^2); with
+Lagrange's identity |R1|^2 |R2|^2 = (R1 . R2)^2 + |R1 x R2|^2 it equals
+|R1 x R2|^2 / (|R1||R2| - R1 . R2), which the kernels use when R1 . R2 < 0::
+
+    B = mu0 I / (4 pi) * (R1 x R2) (|R1| + |R2|) (|R1||R2| - R1 . R2) / (|R1||R2| |R1 x R2|^2)   (2)
+  Currents are rms phasors: the kernel carries
 the real and imaginary parts of every segment's current together and returns
 complex B phasors [T].
 
@@ -161,9 +167,12 @@ def flux_density_segments_numpy(points_m, segments, current_a=None, radius_m=Non
         n2 = np.sqrt(np.einsum("ijk,ijk->ij", r2, r2))
         d = np.einsum("ijk,ijk->ij", r1, r2)
         c = np.cross(r1, r2)
-        den = n1 * n2 * (n1 * n2 + d)
+        nn = n1 * n2
+        neg = d < 0.0
+        num = (n1 + n2) * np.where(neg, nn - d, 1.0)
+        den = nn * np.where(neg, np.einsum("ijk,ijk->ij", c, c), nn + d)  # eq. (2)
         with np.errstate(divide="ignore", invalid="ignore"):
-            f = np.where(den > 0.0, (n1 + n2) / np.where(den > 0.0, den, 1.0), 0.0)
+            f = np.where(den > 0.0, num / np.where(den > 0.0, den, 1.0), 0.0)
         cf = c * f[..., None]  # (k, m, 3)
         re = np.einsum("ijk,j->ik", cf, ic[0])
         im = np.einsum("ijk,j->ik", cf, ic[1])
@@ -254,9 +263,13 @@ def _build_kernels():
                     cry = pz_ * cx - px_ * cz
                     crz = px_ * cy - py_ * cx
                     nn = n1 * n2
-                    # eq. (1); the tiny term keeps 0/0 (point on a segment's line) finite: its
-                    # cross product is 0 there.  Points inside a wire are caught separately.
-                    f = (n1 + n2) / (nn * (nn + px_ * cx + py_ * cy + pz_ * cz) + 1e-300)
+                    # eq. (1) in the cancellation-free form (2) (see the module notes); the tiny
+                    # term keeps 0/0 (point on a segment's line) finite: its cross product is 0
+                    # there.  Points inside a wire are caught by the inside kernel.
+                    dot = px_ * cx + py_ * cy + pz_ * cz
+                    neg = dot < 0.0
+                    num = (n1 + n2) * ((nn - dot) if neg else 1.0)
+                    f = num / (nn * ((crx * crx + cry * cry + crz * crz) if neg else (nn + dot)) + 1e-300)
                     fr = f * cr
                     fi = f * ci
                     t0 = crx * fr
@@ -273,7 +286,10 @@ def _build_kernels():
                     cry = cz * ex - cx * ez
                     crz = cx * ey - cy * ex
                     nn = n2 * n3
-                    f = (n2 + n3) / (nn * (nn + cx * ex + cy * ey + cz * ez) + 1e-300)
+                    dot = cx * ex + cy * ey + cz * ez
+                    neg = dot < 0.0
+                    num = (n2 + n3) * ((nn - dot) if neg else 1.0)
+                    f = num / (nn * ((crx * crx + cry * cry + crz * crz) if neg else (nn + dot)) + 1e-300)
                     fr = f * dr
                     fi = f * di
                     s0[i] += t0 + crx * fr
@@ -408,7 +424,7 @@ def flux_density_segments(
     >>> seg = (np.array([[0.0, 0.0, -1e4]]), np.array([[0.0, 0.0, 1e4]]))
     >>> b = flux_density_segments(np.array([[10.0, 0.0, 0.0]]), seg, current_a=np.array([1000.0]))
     >>> round(float(b[0, 1].real) * 1e6, 6)   # mu0 I / (2 pi d) = 20 uT
-    19.999995
+    19.99999
     """
     if on_conductor not in ("raise", "mask"):
         raise must_be("on_conductor", "'raise' or 'mask'", on_conductor, GeometryError)
