@@ -297,3 +297,67 @@ def test_format_number(value, text):
     assert reports.format_number(value) == text
     if isinstance(value, float) and math.isfinite(value) and value:
         assert float(text) == pytest.approx(value, rel=5e-4)
+
+
+# --------------------------------------------------------------------------- real route reports
+
+
+@pytest.fixture(scope="module", params=["demo_route_lonlat", "demo_route"])
+def real_route_report(request) -> dict:
+    """A route report from the route builder (the invented demo route), grid coarsened to 10 m for speed."""
+    from service.route_assessment import build_route_report
+    from service.route_schemas import load_route_request
+
+    body = json.loads((DEMO.parent / f"{request.param}.json").read_text(encoding="utf-8"))
+    body["grid"]["resolution_m"] = 10.0
+    rep = build_route_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
+    return {"id": "00000000-0000-4000-8000-000000000003", "created_at": "2026-12-01T00:00:00.000000Z",
+            **rep, "digest": "0" * 64}
+
+
+def test_real_route_geojson_is_rfc7946(real_route_report):
+    rep = real_route_report
+    fc = reports.render_geojson(rep)
+    geographic = rep["crs"]["geographic"]
+    assert ("coordinate_reference" in fc) is (not geographic)
+    kinds = [f["properties"]["kind"] for f in fc["features"]]
+    assert kinds.count("receptor") == len(rep["results"]["receptors"]) == 5
+    assert kinds.count("path") == len(rep["results"]["path"])
+    zones = [f for f in fc["features"] if f["properties"]["kind"] == "zone"]
+    assert zones and any(f["geometry"]["coordinates"] for f in zones)
+    for f in fc["features"]:
+        geom = shape(f["geometry"])
+        assert geom.is_valid, f["properties"]
+        if geographic:  # RFC 7946: longitude, latitude in degrees
+            xs, ys = np.asarray(shapely.get_coordinates(geom)).reshape(-1, 2).T
+            assert np.all(np.abs(xs) <= 180) and np.all(np.abs(ys) <= 90)
+        for poly in getattr(geom, "geoms", [geom]) if f["properties"]["kind"] == "zone" else ():
+            assert poly.exterior.is_ccw and not any(r.is_ccw for r in poly.interiors)
+    # Points are where the report says they are, in the request's coordinates.
+    route_line = next(f for f in fc["features"] if f["properties"]["kind"] == "route")
+    assert route_line["geometry"]["coordinates"] == [[s["x"], s["y"]] for s in rep["input"]["route"]["supports"]]
+    first = next(f for f in fc["features"] if f["properties"]["kind"] == "receptor")
+    r0 = rep["results"]["receptors"][0]
+    assert first["geometry"]["coordinates"] == [r0["x"], r0["y"]] and first["properties"]["b_ut"] == r0["b_ut"]
+    json.dumps(fc, allow_nan=False)
+
+
+def test_real_route_csv_and_html(real_route_report):
+    rep = real_route_report
+    rows = list(csv.DictReader(io.StringIO(reports.render_csv(rep))))
+    by_set: dict[str, list] = {}
+    for row in rows:
+        by_set.setdefault(row["set"], []).append(row)
+    grid = rep["results"]["grid"]
+    assert len(by_set["grid"]) == grid["nx"] * grid["ny"]
+    for name in ("path", "lateral_profile", "receptors"):
+        assert [float(r["b_ut"]) for r in by_set[name]] == [p["b_ut"] for p in rep["results"][name]]
+    assert float(by_set["grid"][-1]["b_ut"]) == grid["b_ut"][-1][-1]
+    assert max(float(r["b_ut"]) for r in rows) == rep["maxima"]["b"]["value_ut"]
+    if not rep["crs"]["geographic"]:
+        return  # the page is rendered once, for the lon/lat variant (a few seconds)
+    page = reports.render_html(rep)
+    for element in ('id="plan"', 'id="plot-path"', 'id="plot-lateral-profile"', 'id="drawing"', 'id="zones"'):
+        assert element in page
+    ids = re.findall(r'\bid="([^"]+)"', page)
+    assert len(ids) == len(set(ids))
