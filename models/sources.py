@@ -134,12 +134,17 @@ def subconductor_offsets_m(bundle: Bundle) -> np.ndarray:
     array([[ 0.2,  0. ],
            [-0.2,  0. ]])
     """
+    return np.array(_subconductor_offsets(bundle), dtype=float)
+
+
+def _subconductor_offsets(bundle: Bundle) -> list[tuple[float, float]]:
+    """Plain-float version of :func:`subconductor_offsets_m` (a few points: no numpy overhead)."""
     n = bundle.count
     if n <= 1:
-        return np.zeros((1, 2))
+        return [(0.0, 0.0)]
     a = bundle_radius_m(bundle)
-    theta = math.pi / n - math.pi / 2.0 + 2.0 * math.pi * np.arange(n) / n
-    return np.column_stack([a * np.cos(theta), a * np.sin(theta)])
+    angles = [math.pi / n - math.pi / 2.0 + 2.0 * math.pi * k / n for k in range(n)]
+    return [(a * math.cos(t), a * math.sin(t)) for t in angles]
 
 
 def equivalent_bundle_radius_m(bundle: Bundle) -> float:
@@ -234,8 +239,8 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
     for i, circuit in enumerate(section.circuits):
         cpath = f"{field}.circuits[{i}]"
         angles = circuit_phase_angles_deg(circuit, cpath)
-        rel = subconductor_offsets_m(circuit.bundle)
-        n_sub = rel.shape[0]
+        rel = _subconductor_offsets(circuit.bundle)
+        n_sub = len(rel)
         r_sub = circuit.bundle.subconductor_diameter_m / 2.0
         v_phase = circuit.voltage_kv * V_PER_KV / SQRT3
         for k, (conductor, angle) in enumerate(zip(circuit.conductors, angles)):
@@ -252,7 +257,7 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
                 voltage = 0j
             else:
                 voltage = _phasor(v_phase, angle)
-            for dx, dy in rel.tolist():
+            for dx, dy in rel:
                 xs.append(conductor.offset_m + dx)
                 ys.append(conductor.height_m + dy)
                 rs.append(r_sub)
@@ -460,22 +465,35 @@ def validate_cross_section(section: CrossSection, frequency_hz: float, *, field:
     _check_overlaps(envelopes)
 
 
+_SMALL_PAIR_COUNT = 24
+"""Up to this many conductors the overlap check runs as plain loops, above it in numpy."""
+
+
 def _check_overlaps(envelopes: list[tuple[float, float, float, str]]) -> None:
     """Raise GeometryError for the first pair of conductors whose outer circles touch or overlap."""
     if len(envelopes) < 2:
         return
-    x, y, r = (np.array([e[c] for e in envelopes]) for c in range(3))
-    ia, ib = np.triu_indices(len(envelopes), k=1)          # every pair once, row-major order
-    dist = np.hypot(x[ia] - x[ib], y[ia] - y[ib])
-    clash = np.flatnonzero(dist <= r[ia] + r[ib])
-    if clash.size == 0:
-        return
-    first = clash[0]
-    a, b = int(ia[first]), int(ib[first])
-    d = float(dist[first])
+    m = len(envelopes)
+    if m <= _SMALL_PAIR_COUNT:
+        # a typical section has a handful of conductors: plain loops beat numpy's call overhead
+        pair = next(((a, b) for a in range(m) for b in range(a + 1, m)
+                     if math.hypot(envelopes[a][0] - envelopes[b][0], envelopes[a][1] - envelopes[b][1])
+                     <= envelopes[a][2] + envelopes[b][2]), None)
+        if pair is None:
+            return
+        a, b = pair
+    else:
+        x, y, rr = (np.array([e[c] for e in envelopes]) for c in range(3))
+        ia, ib = np.triu_indices(m, k=1)                    # every pair once, row-major order
+        clash = np.flatnonzero(np.hypot(x[ia] - x[ib], y[ia] - y[ib]) <= rr[ia] + rr[ib])
+        if clash.size == 0:
+            return
+        a, b = int(ia[clash[0]]), int(ib[clash[0]])
+    d = math.hypot(envelopes[a][0] - envelopes[b][0], envelopes[a][1] - envelopes[b][1])
+    r = [e[2] for e in envelopes]
     what = "coincident with" if d == 0.0 else "overlapping"
     raise GeometryError(
         envelopes[b][3],
         f"Input {envelopes[b][3]} must be clear of {envelopes[a][3]} (centre distance > "
-        f"{float(r[a] + r[b])!r} m); instead received a conductor {what} it (centre distance {d!r} m).",
+        f"{r[a] + r[b]!r} m); instead received a conductor {what} it (centre distance {d!r} m).",
     )

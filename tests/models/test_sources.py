@@ -244,3 +244,20 @@ def test_valid_sections_pass():
     validate_cross_section(section_with(kind="underground", height=-1.2, earth_wires=()), 60.0)
     validate_cross_section(section_with(), 1.0)
     validate_cross_section(section_with(), 3000.0)
+
+
+@pytest.mark.parametrize("n_circuits", [2, 9], ids=["few-conductors-loop-path", "many-conductors-numpy-path"])
+def test_overlap_check_reports_the_first_clashing_pair(n_circuits):
+    # conductors 3 m apart on one level; the last circuit's L3 is moved onto the first L1
+    circuits = []
+    for i in range(n_circuits):
+        xs = [3.0 * (3 * i + k) for k in range(3)]
+        if i == n_circuits - 1:
+            xs[2] = 0.0
+        circuits.append(Circuit(f"c{i}", "overhead", 132.0, 500.0,
+                                tuple(Conductor(lab, x, 15.0) for lab, x in zip(("L1", "L2", "L3"), xs)),
+                                Bundle(0.03)))
+    with pytest.raises(GeometryError, match=r"must be clear of cross_section\.circuits\[0\]\.conductors\[0\]") as info:
+        validate_cross_section(CrossSection(tuple(circuits)), 50.0)
+    assert info.value.field == f"cross_section.circuits[{n_circuits - 1}].conductors[2]"
+    assert "coincident" in str(info.value)
