@@ -361,3 +361,18 @@ def test_real_route_csv_and_html(real_route_report):
         assert element in page
     ids = re.findall(r'\bid="([^"]+)"', page)
     assert len(ids) == len(set(ids))
+
+
+def test_several_load_cases_get_a_figure_and_a_table(report):
+    rep = copy.deepcopy(report)
+    pts = rep["points"]
+    rep["load_cases"] = [
+        {"label": "maximum rating", "points": pts, "maxima": rep["maxima"], "outcome": "fail"},
+        {"label": "annual mean", "points": [{**p, "b_ut": p["b_ut"] / 2} for p in pts],
+         "maxima": {"e": rep["maxima"]["e"], "b": {**rep["maxima"]["b"], "value_ut": rep["maxima"]["b"]["value_ut"] / 2}},
+         "outcome": "fail"}]
+    ctx = reports.html_context(rep)
+    assert ctx["cases"]["figure"] and [c["label"] for c in ctx["cases"]["table"]] == ["maximum rating", "annual mean"]
+    assert ctx["cases"]["table"][1]["b"] == reports.format_number(rep["maxima"]["b"]["value_ut"] / 2)
+    assert 'id="load-cases"' in reports.render_html(rep)
+    assert reports.html_context(report)["cases"] is None  # one case: nothing extra
