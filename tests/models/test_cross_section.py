@@ -205,3 +205,49 @@ def test_concurrent_calls_from_threads_agree_with_a_serial_call():
     for res in results:
         np.testing.assert_array_equal(res.e_phasor_v_per_m, serial.e_phasor_v_per_m)
         np.testing.assert_array_equal(res.b_phasor_t, serial.b_phasor_t)
+
+
+# ----------------------------------------------------------------------------- integral laws, random lines
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+
+@st.composite
+def random_line(draw):
+    """Three single conductors at random, well separated positions, with random loading."""
+    xs = draw(st.lists(st.floats(-15.0, 15.0), min_size=3, max_size=3))
+    ys = draw(st.lists(st.floats(6.0, 30.0), min_size=3, max_size=3))
+    pts = np.column_stack([xs, ys])
+    sep = min(np.hypot(*(pts[i] - pts[j])) for i in range(3) for j in range(i + 1, 3))
+    if sep < 1.0:
+        xs = [-8.0, 0.0, 8.0]                       # replace a crowded draw by a flat line
+        sep = 8.0
+    current = draw(st.floats(10.0, 3000.0))
+    kv = draw(st.floats(10.0, 500.0))
+    offset = draw(st.floats(-180.0, 180.0))
+    cond = tuple(Conductor(lab, x, y) for lab, x, y in zip(("L1", "L2", "L3"), xs, ys))
+    return CrossSection((Circuit("c", "overhead", kv, current, cond, Bundle(0.03), angle_offset_deg=offset),)), sep
+
+
+@settings(max_examples=25, deadline=None)
+@given(random_line())
+def test_ampere_and_gauss_hold_on_random_lines(case):
+    # Ampère: closed integral of B . dl around each conductor = mu0 I_k (end-to-end fused path);
+    # Gauss: outward flux of eps0 E around each conductor = its line charge q_k.
+    from models.electric import line_charges
+    from models.sources import build_sources
+
+    section, sep = case
+    src = build_sources(section)
+    q = line_charges(src.x_m, src.y_m, src.radius_m, src.voltage_v)
+    t = np.linspace(0, 2 * np.pi, 512, endpoint=False)
+    a = min(0.3 * sep, 0.5 * src.y_m.min())                    # circles clear of other wires and ground
+    for k in range(3):
+        px, py = src.x_m[k] + a * np.cos(t), src.y_m[k] + a * np.sin(t)
+        res = evaluate_cross_section(section, px, py, 50.0)
+        dlx, dly = -a * np.sin(t), a * np.cos(t)                 # dl / dt, counter-clockwise
+        circ = np.sum(res.b_phasor_t[:, 0] * dlx + res.b_phasor_t[:, 1] * dly) * (2 * np.pi / t.size)
+        assert abs(circ - sc.mu_0 * src.current_a[k]) <= 1e-9 * sc.mu_0 * np.abs(src.current_a).max()
+        flux = sc.epsilon_0 * np.sum(res.e_phasor_v_per_m[:, 0] * dly - res.e_phasor_v_per_m[:, 1] * dlx) * (2 * np.pi / t.size)
+        assert abs(flux - q[k]) <= 1e-9 * np.abs(q).max()
