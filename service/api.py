@@ -65,6 +65,11 @@ def _query(schema: Any) -> dict[str, Any]:
                            type_=INVALID_PARAMETER, title="Invalid query parameter") from None
 
 
+def _json_text(text: str) -> Response:
+    """A JSON response from text that is already JSON (stored reports are served as stored)."""
+    return Response(text, mimetype="application/json")
+
+
 def _summary(record: storage.AssessmentRecord) -> dict[str, Any]:
     return {
         "id": str(record.id),
@@ -92,7 +97,7 @@ def create_assessment() -> tuple[Response, int, dict[str, str]]:
     with session.begin():
         record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
     location = url_for("api.get_assessment", assessment_id=record.id)
-    return jsonify(record.report()), 201, {"Location": location}
+    return _json_text(record.served_json()), 201, {"Location": location}
 
 
 @bp.get("/v1/assessments/<uuid:assessment_id>")
@@ -103,7 +108,7 @@ def get_assessment(assessment_id: uuid.UUID) -> Response:
         record = storage.get_assessment(session, assessment_id)
     if record is None:
         raise NotFound(f"No assessment with id {assessment_id}.")
-    return jsonify(record.report())
+    return _json_text(record.served_json())
 
 
 @bp.get("/v1/assessments")

@@ -100,7 +100,7 @@ def main() -> int:
     env = {**os.environ, "HOST": HOST, "PORT": str(port)}
     env.setdefault("WEB_CONCURRENCY", "2")
     server = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", str(ROOT / "deploy" / "gunicorn.conf.py")],
-                              cwd=ROOT, env=env)
+                              cwd=ROOT, env=env, stdout=sys.stderr)  # server logs on stderr, our lines on stdout
     try:
         print(f"Starting emf-assess on {base} ...", flush=True)
         wait_healthy(base, server)

@@ -113,6 +113,15 @@ class AssessmentRecord(Base):
         body["digest"] = self.digest
         return body
 
+    def served_json(self) -> str:
+        """JSON text of :meth:`report` built without re-parsing: the stored text plus ``digest``.
+
+        ``report_json`` is a compact JSON object, so the digest member goes before its
+        closing brace; the result parses to exactly :meth:`report`.
+        """
+        assert self.report_json.endswith("}")
+        return self.report_json[:-1] + ',"digest":' + json.dumps(self.digest) + "}"
+
 
 class ChainHead(Base):
     """Single row (id = 1) holding the sequence number and digest of the newest record."""

@@ -190,3 +190,11 @@ def test_naive_datetime_refused(make_session):
         session.add(rec)
         with pytest.raises(StatementError, match="timezone-aware"):
             session.commit()
+
+
+def test_served_json_parses_to_report(make_session):
+    import json
+
+    record = insert(make_session, 3)
+    assert json.loads(record.served_json()) == record.report()
+    assert list(json.loads(record.served_json()))[-1] == "digest"
