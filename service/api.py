@@ -45,11 +45,17 @@ def _json_body() -> Any:
     return request.get_json()
 
 
-def _load_request(body: Any) -> Any:
+def _compute_report(body: Any) -> dict[str, Any]:
+    """Validate a request body and build its report (the one place both POST routes share).
+
+    Another request geometry (e.g. a route) is dispatched here on the body's shape.
+    """
+    from .assessment import build_report
     from .schemas import load_assessment_request
 
-    return load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
-                                   max_conductors=current_app.config["MAX_CONDUCTORS"])
+    request_obj = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
+                                          max_conductors=current_app.config["MAX_CONDUCTORS"])
+    return build_report(request_obj)
 
 
 def _query(schema: Any) -> dict[str, Any]:
@@ -90,9 +96,7 @@ def _summary(record: storage.AssessmentRecord) -> dict[str, Any]:
 @bp.post("/v1/assessments")
 def create_assessment() -> tuple[Response, int, dict[str, str]]:
     """Compute an assessment and store it."""
-    from .assessment import build_report
-
-    report = build_report(_load_request(_json_body()))
+    report = _compute_report(_json_body())
     session = storage.get_session()
     with session.begin():
         record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
@@ -140,9 +144,7 @@ def list_assessments() -> Response:
 @bp.post("/v1/evaluate")
 def evaluate() -> Response:
     """Compute an assessment without storing it."""
-    from .assessment import build_report
-
-    report = build_report(_load_request(_json_body()))
+    report = _compute_report(_json_body())
     return jsonify({"id": None, "created_at": None, **report, "digest": None})
 
 
