@@ -303,6 +303,7 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
     if not xs:
         raise ValueError("cross_section has no conductors")
     span = max(max(xs) - min(xs), 10.0)
+    centre_x = (max(xs) + min(xs)) / 2
     margin = max(0.5 * span, 0.4 * max(max(ys), 1.0), 8.0)
     lo, hi = min(xs) - margin, max(xs) + margin
     if extent_m is not None:  # never wider than needed to show the conductors well
@@ -335,6 +336,7 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
     _ground_hatch(ax, lo, hi, depth)
 
     markers = ("o", "s", "D", "^", "v", "P")
+    stacked = 0
     for ci_index, circuit in enumerate(circuits):
         bundle = circuit.get("bundle") or {}
         count = int(bundle.get("count", 1) or 1)
@@ -353,10 +355,15 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
                     markerfacecolor="white" if ci_index % 2 else _INK, linestyle="none",
                     label=desc if first else None, zorder=4)
             first = False
-            left_side = x < 0
+            # Labels point away from the centre line; near it (within 5 % of the width) they go above.
+            side = 0 if abs(x - centre_x) < 0.05 * span else (-1 if x < centre_x else 1)
+            lift = 0
+            if not side:  # stack the labels of conductors close to the centre line
+                lift = 7 + 11 * stacked
+                stacked += 1
             ax.annotate(f"{_label(cond.get('phase', ''))} ({x:+.1f}, {y:.1f})", xy=(x, y),
-                        xytext=(-7 if left_side else 7, 0), textcoords="offset points",
-                        ha="right" if left_side else "left", va="center", fontsize=_FONT_SIZE - 1.5, color=_INK, zorder=5,
+                        xytext=(7 * side, lift), textcoords="offset points",
+                        ha={-1: "right", 0: "center", 1: "left"}[side], va="center" if side else "bottom", fontsize=_FONT_SIZE - 1.5, color=_INK, zorder=5,
                         bbox={"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
     for k, wire in enumerate(earth):
         x, y = float(wire["offset_m"]), float(wire["height_m"])

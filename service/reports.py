@@ -513,7 +513,7 @@ def _assumption_summary(report: Mapping[str, Any]) -> list[tuple[str, str]]:
     cq = report.get("compliance_quantity", "resultant")
     return [("Model", model), ("Ground", ground), ("Sag case", sag),
             ("Compliance quantity", QUANTITY_TEXT.get(cq, cq)),
-            ("Frequency", f"{format_number(report.get('frequency_hz'))} Hz")]
+            ("Frequency", f"{float(report.get('frequency_hz') or 0):g} Hz")]
 
 
 def _circuit_rows(section: Mapping[str, Any] | None) -> list[dict[str, str]]:
