@@ -140,26 +140,13 @@ def get_geojson(assessment_id: uuid.UUID) -> Response:
 def _recompute(request_json: str) -> dict[str, Any]:
     """The report the current engine and catalogue give for a stored canonical request.
 
-    The stored request passes through the same schema as a new one (cross-section or
-    route), so a request that would be refused today is reported as not recomputable.
+    The stored request goes through the same validation and dispatch as a new one
+    (:func:`service.api._compute_report`), so a request that would be refused today is
+    reported as not recomputable.
     """
-    from .route_schemas import DEFAULT_MAX_ROUTE_POINTS, geometry_kind
+    from .api import _compute_report
 
-    body = json.loads(request_json)
-    config = current_app.config
-    if geometry_kind(body) == "route":
-        from .route_assessment import build_route_report
-        from .route_schemas import load_route_request
-
-        max_points = int(config.get("MAX_ROUTE_POINTS", DEFAULT_MAX_ROUTE_POINTS))
-        route_request = load_route_request(body, max_route_points=max_points,
-                                           max_conductors=config["MAX_CONDUCTORS"])
-        return build_route_report(route_request, max_points=max_points)
-    from .assessment import build_report
-    from .schemas import load_assessment_request
-
-    return build_report(load_assessment_request(body, max_points=config["MAX_POINTS"],
-                                                max_conductors=config["MAX_CONDUCTORS"]))
+    return _compute_report(json.loads(request_json))
 
 
 def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:
