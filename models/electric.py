@@ -116,7 +116,8 @@ def electric_field_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
     -----
     ``E = sum_k Q_k / (2 pi eps0) [(r - r_k)/|r - r_k|^2 - (r - r'_k)/|r - r'_k|^2]``
     with image ``r'_k = (x_k, -y_k)`` (check-values.md section 7.1).  On the ground
-    (y = 0) the horizontal terms cancel pairwise, so the field is vertical.
+    (y = 0) the horizontal terms cancel pairwise, so the field is vertical.  Points
+    on a wire axis give inf/nan; callers must keep points outside the wires.
 
     Examples
     --------
@@ -140,7 +141,7 @@ def _kernel():
     """
     import numba
 
-    @numba.njit(cache=True, nogil=True)
+    @numba.njit(cache=True, nogil=True, error_model="numpy")   # IEEE results (inf/nan), no exceptions
     def field(ox, oy, cx, cy, q_re, q_im, out):
         for p in range(ox.size):
             x = ox[p]

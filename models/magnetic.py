@@ -155,7 +155,7 @@ def _kernels():
     """
     import numba
 
-    @numba.njit(cache=True, nogil=True)
+    @numba.njit(cache=True, nogil=True, error_model="numpy")   # IEEE results (inf/nan), no exceptions
     def direct(ox, oy, cx, cy, i_re, i_im, out):
         for p in range(ox.size):
             x = ox[p]
@@ -179,7 +179,7 @@ def _kernels():
             out[p, 0] += complex(bxr, bxi)
             out[p, 1] += complex(byr, byi)
 
-    @numba.njit(cache=True, nogil=True)
+    @numba.njit(cache=True, nogil=True, error_model="numpy")   # IEEE results (inf/nan), no exceptions
     def image(ox, oy, cx, cy, current, depth, out):
         for p in range(ox.size):
             x = ox[p]
