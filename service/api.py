@@ -14,7 +14,7 @@ from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request, url_for
 from sqlalchemy.exc import SQLAlchemyError
-from werkzeug.exceptions import NotFound, UnsupportedMediaType
+from werkzeug.exceptions import BadRequest, NotFound, UnsupportedMediaType
 
 from . import storage
 from .errors import INVALID_PARAMETER, ProblemError
@@ -42,7 +42,13 @@ def _json_body() -> Any:
     """The parsed JSON body: 415 if not declared as JSON, 400 if malformed, 413 if too large."""
     if not request.is_json:
         raise UnsupportedMediaType("Send the request body as JSON with Content-Type: application/json.")
-    return request.get_json()
+    raw = request.get_data(cache=True)  # raises RequestEntityTooLarge over MAX_CONTENT_LENGTH
+    try:
+        return json.loads(raw)  # NaN/Infinity tokens parse here and are refused by the schemas, by field
+    except RecursionError:
+        raise BadRequest("The JSON body is nested too deeply.") from None
+    except ValueError as exc:  # includes UnicodeDecodeError and over-long integers
+        raise BadRequest(f"The body is not valid JSON: {exc}") from None
 
 
 def _compute_report(body: Any) -> dict[str, Any]:

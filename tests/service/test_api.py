@@ -331,7 +331,9 @@ def test_non_json_body_is_415(app, client, content_type):
     assert stored_count(app) == 0
 
 
-@pytest.mark.parametrize("raw", ['{"title": ', "{'title': 'single quotes'}", "", '{"a": 1} trailing'])
+@pytest.mark.parametrize("raw", ['{"title": ', "{'title': 'single quotes'}", "", '{"a": 1} trailing',
+                                 "[" * 100_000, '{"title": ' + "9" * 5000 + "}", b"\xff\xfe{"],
+                         ids=["truncated", "single-quotes", "empty", "trailing", "deep-nesting", "huge-int", "bad-utf"])
 def test_malformed_json_is_400(app, client, raw):
     response = client.post("/v1/assessments", data=raw, content_type="application/json")
     assert response.status_code == 400 and response.mimetype == PROBLEM
@@ -367,3 +369,45 @@ def test_stored_record_cannot_be_changed_through_the_api(client):
     for method in ("put", "patch", "delete"):
         assert getattr(client, method)(location, json=small_body()).status_code == 405
     assert client.get(location).status_code == 200
+
+
+# --------------------------------------------------------------------------- robustness
+
+from hypothesis import HealthCheck, given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+JSON_VALUES = st.recursive(
+    st.none() | st.booleans() | st.integers(-10**6, 10**6) | st.floats(allow_nan=True, allow_infinity=True)
+    | st.text(max_size=10),
+    lambda children: st.lists(children, max_size=3) | st.dictionaries(st.text(max_size=5), children, max_size=3),
+    max_leaves=6,
+)
+
+
+def _leaf_paths(obj, prefix=()):
+    if isinstance(obj, dict):
+        for k, v in obj.items():
+            yield prefix + (k,)
+            yield from _leaf_paths(v, prefix + (k,))
+    elif isinstance(obj, list):
+        for i, v in enumerate(obj):
+            yield prefix + (i,)
+            yield from _leaf_paths(v, prefix + (i,))
+
+
+SMALL_PATHS = list(_leaf_paths(small_body()))
+
+
+@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(path=st.sampled_from(SMALL_PATHS), value=JSON_VALUES)
+def test_any_value_anywhere_is_answered_without_500(client, path, value):
+    # "Never a 500 for bad input": replace one member of a valid body by an arbitrary JSON value.
+    body = small_body()
+    target = body
+    for p in path[:-1]:
+        target = target[p]
+    target[path[-1]] = value
+    response = client.post("/v1/evaluate", data=json.dumps(body), content_type="application/json")
+    assert response.status_code in (200, 422), response.get_data(as_text=True)
+    if response.status_code == 422:
+        assert response.mimetype == PROBLEM and response.get_json()["errors"]
