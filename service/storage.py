@@ -324,11 +324,25 @@ def ping(session: Session) -> None:
 # --------------------------------------------------------------------------- wiring
 
 
+def normalise_url(url: str) -> str:
+    """Use the installed PostgreSQL driver (psycopg 3) for bare ``postgresql://``/``postgres://`` URLs.
+
+    >>> normalise_url("postgres://u@db/emf")
+    'postgresql+psycopg://u@db/emf'
+    >>> normalise_url("sqlite:///x.sqlite3")
+    'sqlite:///x.sqlite3'
+    """
+    for prefix in ("postgresql://", "postgres://"):
+        if url.startswith(prefix):
+            return "postgresql+psycopg://" + url[len(prefix):]
+    return url
+
+
 def database_url(app: Flask) -> str:
     """``DATABASE_URL`` from the config, or the default SQLite file in the instance folder."""
     url = app.config.get("DATABASE_URL")
     if url:
-        return url
+        return normalise_url(url)
     os.makedirs(app.instance_path, exist_ok=True)
     return "sqlite:///" + os.path.join(app.instance_path, SQLITE_FILENAME)
 

@@ -198,3 +198,26 @@ def test_served_json_parses_to_report(make_session):
     record = insert(make_session, 3)
     assert json.loads(record.served_json()) == record.report()
     assert list(json.loads(record.served_json()))[-1] == "digest"
+
+
+def test_whole_api_on_each_database(db_url):
+    # The HTTP round trip on SQLite and PostgreSQL: UUID, timestamptz and text columns behave alike.
+    from service import create_app
+    from tests.service.test_api import small_body
+
+    app = create_app({"TESTING": True, "DATABASE_URL": db_url})
+    client = app.test_client()
+    created = client.post("/v1/assessments", json=small_body())
+    assert created.status_code == 201
+    assert client.get(created.headers["Location"]).get_json() == created.get_json()
+    listed = client.get("/v1/assessments?reference=T-1").get_json()["data"]
+    assert [d["id"] for d in listed] == [created.get_json()["id"]]
+    after = client.get("/v1/assessments", query_string={"created_after": created.get_json()["created_at"]})
+    assert after.get_json()["data"] == []
+    assert client.get("/healthz").status_code == 200
+    storage.storage_of(app).engine.dispose()
+
+
+def test_bare_postgresql_url_uses_psycopg():
+    assert storage.normalise_url("postgresql://postgres@127.0.0.1:5432/test") == \
+        "postgresql+psycopg://postgres@127.0.0.1:5432/test"
