@@ -31,7 +31,8 @@ from .geometry import (
 )
 from .electric3d import electric_field_segments, line_charges
 from .electric3d import warm_up as warm_up_electric
-from .magnetic3d import flux_density_segments, warm_up
+from .magnetic3d import flux_density_segments
+from .magnetic3d import warm_up as warm_up_magnetic
 from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
 
 __all__ = [

@@ -13,9 +13,9 @@ Lagrange's identity |R1|^2 |R2|^2 = (R1 . R2)^2 + |R1 x R2|^2 it equals
 |R1 x R2|^2 / (|R1||R2| - R1 . R2), which the kernels use when R1 . R2 < 0::
 
     B = mu0 I / (4 pi) * (R1 x R2) (|R1| + |R2|) (|R1||R2| - R1 . R2) / (|R1||R2| |R1 x R2|^2)   (2)
-  Currents are rms phasors: the kernel carries
-the real and imaginary parts of every segment's current together and returns
-complex B phasors [T].
+
+Currents are rms phasors: the kernel carries the real and imaginary parts of
+every segment's current together and returns complex B phasors [T].
 
 A point within a wire's radius of its segment (the conductor axis, the
 segment's end spheres included) is inside the conductor, where (1) does not
@@ -23,12 +23,17 @@ hold; such points raise :class:`models.errors.GeometryError` (or are reported
 in a mask, see ``on_conductor``).  Points on the axis *beyond* a segment's ends
 get the exact zero of (1).
 
-The kernel is compiled with numba (``parallel=True``, cached on disk in numba's
-cache directory, see :func:`warm_up`).  It is blocked: points in tiles, each
-tile swept over the segments in blocks that stay in the L1 cache, and
-consecutive segments of one wire share the vertex distances |p - v| (one square
-root per vertex rather than two per segment).  Points are processed in chunks
-of ``chunk_size`` so that temporary memory stays bounded.
+The kernel is compiled with numba (``parallel=True``, ``fastmath`` limited to
+contraction/reassociation so that IEEE comparisons stay valid, cached on disk in
+numba's cache directory, see :func:`warm_up`).  It is cache-blocked: points in
+tiles of 256 (parallel over tiles), each tile's arrays kept in L1 while the
+segments stream from L2.  Segments are grouped into *runs* (continuous
+polylines of one current, i.e. one wire): consecutive segments share the vertex
+distance |p - v| (one square root per vertex, not two per segment), four links
+are evaluated per sweep over the tile, and a run's geometric sum is multiplied
+by its current's real and imaginary parts once.  Points go through in chunks
+of ``chunk_size``, so temporary memory is bounded (a few arrays of chunk_size
+doubles) whatever the number of points.  Figures: benchmarks/README.md.
 
 References
 ----------
@@ -102,6 +107,39 @@ def _link_boxes(verts, link_rad, block):
     return box
 
 
+_SWEEP = 4  # links per sweep of the field kernel
+
+
+def _runs(start, end, cur):
+    """Group segments into runs: continuous polylines of one current, padded to whole sweeps.
+
+    Returns ``(verts, run_start, run_links, run_current)``: run r's links join vertices
+    ``run_start[r] + j`` and ``+ j + 1`` for j < run_links[r] (a multiple of 4); padding
+    links repeat the last vertex (zero length: they add exactly nothing).  Segments with
+    zero current or zero length are dropped.
+    """
+    keep = (cur != 0) & np.any(start != end, axis=1)
+    start, end, cur = start[keep], end[keep], cur[keep]
+    m = len(start)
+    if m == 0:
+        return np.zeros((1, 3)), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, complex)
+    brk = ~(np.all(end[:-1] == start[1:], axis=1) & (cur[:-1] == cur[1:]))
+    first = np.flatnonzero(np.concatenate([[True], brk]))
+    stop = np.concatenate([first[1:], [m]])
+    pieces, run_start, run_links = [], [], []
+    pos = 0
+    for a, b in zip(first, stop):
+        links = b - a
+        pad = -links % _SWEEP
+        v = np.vstack([start[a:b], end[b - 1:b], np.repeat(end[b - 1:b], pad, axis=0)])
+        pieces.append(v)
+        run_start.append(pos)
+        run_links.append(links + pad)
+        pos += len(v)
+    return (np.vstack(pieces), np.asarray(run_start, np.int64), np.asarray(run_links, np.int64),
+            np.ascontiguousarray(cur[first]))
+
+
 def _polylines(start, end, cur, rad):
     """Chain segments into vertex lists: links k -> k+1 carry ``cur``; breaks carry 0.
 
@@ -136,8 +174,11 @@ def _polylines(start, end, cur, rad):
 
 
 def flux_density_segments_numpy(points_m, segments, current_a=None, radius_m=None, *,
-                                chunk_size: int = 4096) -> np.ndarray:
-    """Plain chunked-numpy evaluation of eq. (1) (reference and fallback; no inside check).
+                                chunk_size: int = 16) -> np.ndarray:
+    """Plain chunked-numpy evaluation of eqs. (1)/(2): the reference for tests and benchmarks.
+
+    Not used by :func:`flux_density_segments` (no inside-conductor check, no fallback);
+    ``tests/models/route/test_magnetic3d.py`` checks that both agree to 1e-12.
 
     Parameters
     ----------
@@ -148,7 +189,7 @@ def flux_density_segments_numpy(points_m, segments, current_a=None, radius_m=Non
     current_a, radius_m : ndarray, optional
         Currents [A] and radii [m] when ``segments`` is a pair of arrays.
     chunk_size : int
-        Points per chunk (memory ~ 100 bytes x chunk_size x m).
+        Points per chunk (about 200 bytes x chunk_size x m of temporaries).
 
     Returns
     -------
@@ -158,25 +199,26 @@ def flux_density_segments_numpy(points_m, segments, current_a=None, radius_m=Non
     start, end, cur, _ = _segment_arrays(segments, current_a, radius_m)
     p = np.asarray(points_m, dtype=float).reshape(-1, 3)
     out = np.zeros((len(p), 3), dtype=complex)
-    ic = np.stack([cur.real, cur.imag])  # (2, m)
+    ic = np.stack([cur.real, cur.imag], axis=1)  # (m, 2)
     for lo in range(0, len(p), chunk_size):
-        q = p[lo:lo + chunk_size, None, :]
-        r1 = q - start[None]
-        r2 = q - end[None]
-        n1 = np.sqrt(np.einsum("ijk,ijk->ij", r1, r1))
-        n2 = np.sqrt(np.einsum("ijk,ijk->ij", r2, r2))
-        d = np.einsum("ijk,ijk->ij", r1, r2)
-        c = np.cross(r1, r2)
+        q = p[lo:lo + chunk_size]
+        ax, ay, az = (q[:, k, None] - start[None, :, k] for k in range(3))
+        bx, by, bz = (q[:, k, None] - end[None, :, k] for k in range(3))
+        n1 = np.sqrt(ax * ax + ay * ay + az * az)
+        n2 = np.sqrt(bx * bx + by * by + bz * bz)
+        cx = ay * bz - az * by
+        cy = az * bx - ax * bz
+        cz = ax * by - ay * bx
         nn = n1 * n2
+        d = ax * bx + ay * by + az * bz
         neg = d < 0.0
         num = (n1 + n2) * np.where(neg, nn - d, 1.0)
-        den = nn * np.where(neg, np.einsum("ijk,ijk->ij", c, c), nn + d)  # eq. (2)
+        den = nn * np.where(neg, cx * cx + cy * cy + cz * cz, nn + d)  # eq. (2) where R1 . R2 < 0
         with np.errstate(divide="ignore", invalid="ignore"):
             f = np.where(den > 0.0, num / np.where(den > 0.0, den, 1.0), 0.0)
-        cf = c * f[..., None]  # (k, m, 3)
-        re = np.einsum("ijk,j->ik", cf, ic[0])
-        im = np.einsum("ijk,j->ik", cf, ic[1])
-        out[lo:lo + chunk_size] = _K * (re + 1j * im)
+        for k, c in enumerate((cx, cy, cz)):
+            ri = (c * f) @ ic  # (chunk, 2): real and imaginary current together
+            out[lo:lo + chunk_size, k] = _K * (ri[:, 0] + 1j * ri[:, 1])
     return out
 
 
@@ -193,14 +235,16 @@ def _build_kernels():
     fm = {"contract", "reassoc", "nsz", "arcp"}
 
     @nb.njit(parallel=True, fastmath=fm, cache=True, nogil=True, boundscheck=False)
-    def field_kernel(px, py, pz, vx, vy, vz, ire, iim, scale, out, tile):  # pragma: no cover - compiled
-        # Points in tiles (parallel); per tile the links k -> k+1 are swept in order,
-        # the inner loop runs over the tile's points (SIMD lanes) and carries the
-        # vertex vector R = p - v_k and |R| from one link to the next.  Two links per
-        # sweep halve the traffic of the per-point accumulators.  Tile arrays
-        # (13 x tile doubles) stay in L1; the vertex arrays in L2.
+    def field_kernel(px, py, pz, vx, vy, vz, run_start, run_links, run_re, run_im, scale, out, tile):  # pragma: no cover
+        # Points in tiles (parallel over tiles).  For each run (a polyline of one current,
+        # links k -> k+1 for k in run_start .. run_start + run_links, run_links a multiple
+        # of 4), the links are swept four at a time; the inner loop runs over the tile's
+        # points (SIMD lanes) and carries |p - v_k| from one link to the next, so each
+        # vertex costs one square root.  The geometric sum of a run is multiplied by its
+        # current (real and imaginary parts) once at the end of the run.  A tile's arrays
+        # (13 x tile doubles) stay in L1, the vertex arrays in L2.
         n = px.shape[0]
-        nl = vx.shape[0] - 1
+        nr = run_start.shape[0]
         ntile = (n + tile - 1) // tile
         for t in nb.prange(ntile):
             lo = t * tile
@@ -209,100 +253,124 @@ def _build_kernels():
             qx = px[lo:hi].copy()
             qy = py[lo:hi].copy()
             qz = pz[lo:hi].copy()
-            ax = np.empty(m)
-            ay = np.empty(m)
-            az = np.empty(m)
             an = np.empty(m)
+            tx = np.empty(m)
+            ty = np.empty(m)
+            tz = np.empty(m)
             s0 = np.zeros(m)
             s1 = np.zeros(m)
             s2 = np.zeros(m)
             s3 = np.zeros(m)
             s4 = np.zeros(m)
             s5 = np.zeros(m)
-            for i in range(m):
-                dx = qx[i] - vx[0]
-                dy = qy[i] - vy[0]
-                dz = qz[i] - vz[0]
-                ax[i] = dx
-                ay[i] = dy
-                az[i] = dz
-                an[i] = math.sqrt(dx * dx + dy * dy + dz * dz)
-            k = 0
-            while k < nl:
-                two = k + 1 < nl
-                wx = vx[k + 1]
-                wy = vy[k + 1]
-                wz = vz[k + 1]
-                cr = ire[k]
-                ci = iim[k]
-                if two:
-                    ux = vx[k + 2]
-                    uy = vy[k + 2]
-                    uz = vz[k + 2]
-                    dr = ire[k + 1]
-                    di = iim[k + 1]
-                else:  # a last single link: a second, currentless copy of it adds nothing
-                    ux = wx
-                    uy = wy
-                    uz = wz
-                    dr = 0.0
-                    di = 0.0
+            for r in range(nr):
+                k0 = run_start[r]
                 for i in range(m):
-                    x = qx[i]
-                    y = qy[i]
-                    z = qz[i]
-                    px_ = ax[i]
-                    py_ = ay[i]
-                    pz_ = az[i]
-                    n1 = an[i]
-                    cx = x - wx
-                    cy = y - wy
-                    cz = z - wz
-                    n2 = math.sqrt(cx * cx + cy * cy + cz * cz)
-                    crx = py_ * cz - pz_ * cy
-                    cry = pz_ * cx - px_ * cz
-                    crz = px_ * cy - py_ * cx
-                    nn = n1 * n2
-                    # eq. (1) in the cancellation-free form (2) (see the module notes); the tiny
-                    # term keeps 0/0 (point on a segment's line) finite: its cross product is 0
-                    # there.  Points inside a wire are caught by the inside kernel.
-                    dot = px_ * cx + py_ * cy + pz_ * cz
-                    neg = dot < 0.0
-                    num = (n1 + n2) * ((nn - dot) if neg else 1.0)
-                    f = num / (nn * ((crx * crx + cry * cry + crz * crz) if neg else (nn + dot)) + 1e-300)
-                    fr = f * cr
-                    fi = f * ci
-                    t0 = crx * fr
-                    t1 = crx * fi
-                    t2 = cry * fr
-                    t3 = cry * fi
-                    t4 = crz * fr
-                    t5 = crz * fi
-                    ex = x - ux
-                    ey = y - uy
-                    ez = z - uz
-                    n3 = math.sqrt(ex * ex + ey * ey + ez * ez)
-                    crx = cy * ez - cz * ey
-                    cry = cz * ex - cx * ez
-                    crz = cx * ey - cy * ex
-                    nn = n2 * n3
-                    dot = cx * ex + cy * ey + cz * ez
-                    neg = dot < 0.0
-                    num = (n2 + n3) * ((nn - dot) if neg else 1.0)
-                    f = num / (nn * ((crx * crx + cry * cry + crz * crz) if neg else (nn + dot)) + 1e-300)
-                    fr = f * dr
-                    fi = f * di
-                    s0[i] += t0 + crx * fr
-                    s1[i] += t1 + crx * fi
-                    s2[i] += t2 + cry * fr
-                    s3[i] += t3 + cry * fi
-                    s4[i] += t4 + crz * fr
-                    s5[i] += t5 + crz * fi
-                    ax[i] = ex
-                    ay[i] = ey
-                    az[i] = ez
-                    an[i] = n3
-                k += 2
+                    dx = qx[i] - vx[k0]
+                    dy = qy[i] - vy[k0]
+                    dz = qz[i] - vz[k0]
+                    an[i] = math.sqrt(dx * dx + dy * dy + dz * dz)
+                    tx[i] = 0.0
+                    ty[i] = 0.0
+                    tz[i] = 0.0
+                for k in range(k0, k0 + run_links[r], 4):
+                    v0x = vx[k]
+                    v0y = vy[k]
+                    v0z = vz[k]
+                    v1x = vx[k + 1]
+                    v1y = vy[k + 1]
+                    v1z = vz[k + 1]
+                    v2x = vx[k + 2]
+                    v2y = vy[k + 2]
+                    v2z = vz[k + 2]
+                    v3x = vx[k + 3]
+                    v3y = vy[k + 3]
+                    v3z = vz[k + 3]
+                    v4x = vx[k + 4]
+                    v4y = vy[k + 4]
+                    v4z = vz[k + 4]
+                    for i in range(m):
+                        x = qx[i]
+                        y = qy[i]
+                        z = qz[i]
+                        # Each link: R1 = p - v_k (a*), R2 = p - v_k+1 (b*), c = R1 x R2, and
+                        # eq. (1), or its cancellation-free form (2) when R1 . R2 < 0.  The tiny
+                        # term keeps 0/0 (a point on a link's line, where c = 0) finite; points
+                        # inside a wire are caught by the inside kernel.
+                        ax = x - v0x
+                        ay = y - v0y
+                        az = z - v0z
+                        n1 = an[i]
+                        bx = x - v1x
+                        by = y - v1y
+                        bz = z - v1z
+                        n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                        cx = ay * bz - az * by
+                        cy = az * bx - ax * bz
+                        cz = ax * by - ay * bx
+                        nn = n1 * n2
+                        dot = ax * bx + ay * by + az * bz
+                        neg = dot < 0.0
+                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                        ux = cx * f
+                        uy = cy * f
+                        uz = cz * f
+                        ax = x - v2x
+                        ay = y - v2y
+                        az = z - v2z
+                        n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                        cx = by * az - bz * ay
+                        cy = bz * ax - bx * az
+                        cz = bx * ay - by * ax
+                        nn = n1 * n2
+                        dot = ax * bx + ay * by + az * bz
+                        neg = dot < 0.0
+                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                        ux += cx * f
+                        uy += cy * f
+                        uz += cz * f
+                        bx = x - v3x
+                        by = y - v3y
+                        bz = z - v3z
+                        n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                        cx = ay * bz - az * by
+                        cy = az * bx - ax * bz
+                        cz = ax * by - ay * bx
+                        nn = n1 * n2
+                        dot = ax * bx + ay * by + az * bz
+                        neg = dot < 0.0
+                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                        ux += cx * f
+                        uy += cy * f
+                        uz += cz * f
+                        ax = x - v4x
+                        ay = y - v4y
+                        az = z - v4z
+                        n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                        cx = by * az - bz * ay
+                        cy = bz * ax - bx * az
+                        cz = bx * ay - by * ax
+                        nn = n1 * n2
+                        dot = ax * bx + ay * by + az * bz
+                        neg = dot < 0.0
+                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                        tx[i] += ux + cx * f
+                        ty[i] += uy + cy * f
+                        tz[i] += uz + cz * f
+                        an[i] = n1
+                cr = run_re[r]
+                ci = run_im[r]
+                for i in range(m):
+                    s0[i] += tx[i] * cr
+                    s1[i] += tx[i] * ci
+                    s2[i] += ty[i] * cr
+                    s3[i] += ty[i] * ci
+                    s4[i] += tz[i] * cr
+                    s5[i] += tz[i] * ci
             for i in range(m):
                 out[lo + i, 0, 0] = scale * s0[i]
                 out[lo + i, 0, 1] = scale * s1[i]
@@ -438,10 +506,12 @@ def flux_density_segments(
     start, end, cur, rad = _segment_arrays(segments, current_a, radius_m)
     verts, link_cur, link_rad = _polylines(start, end, cur, rad)
     vx, vy, vz = (np.ascontiguousarray(verts[:, k]) for k in range(3))
-    ire = np.ascontiguousarray(link_cur.real)
-    iim = np.ascontiguousarray(link_cur.imag)
     r2 = np.ascontiguousarray(link_rad**2)
     box = _link_boxes(verts, link_rad, _INSIDE_BLOCK)
+    rverts, run_start, run_links, run_cur = _runs(start, end, cur)
+    wx, wy, wz = (np.ascontiguousarray(rverts[:, k]) for k in range(3))
+    run_re = np.ascontiguousarray(run_cur.real)
+    run_im = np.ascontiguousarray(run_cur.imag)
     field_kernel, inside_kernel = _get_kernels()
 
     n = len(p)
@@ -451,10 +521,7 @@ def flux_density_segments(
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(p[lo:hi, k]) for k in range(3))
-        if len(link_cur):
-            field_kernel(qx, qy, qz, vx, vy, vz, ire, iim, _K, ov[lo:hi], int(tile))
-        else:
-            ov[lo:hi] = 0.0
+        field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, _K, ov[lo:hi], int(tile))
         inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
     hits = hit >= 0
     if on_conductor == "mask":
