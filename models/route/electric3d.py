@@ -21,11 +21,11 @@ observation point ``p``, ``r1 = |p - A|``, ``r2 = |p - B|``, ``S = r1 + r2``):
   ``d1 = p - A``, ``d2 = p - B``, since ``grad S = d1/r1 + d2/r2``.
 
 The potential is the integral of the point-charge potential ``k q ds / |p - s|``
-along the segment (the standard finite line-charge result, e.g. D. J. Griffiths,
-*Introduction to Electrodynamics*, 4th ed., Problem 2.25 / Example 2.1 for the
-field, from memory); it is checked against numerical quadrature in the tests.
-The ground images are the method of images for a perfectly conducting plane
-(ibid., Section 3.2), the 3-D form of the Maxwell potential-coefficient method
+along the segment (the finite line charge worked in standard texts, e.g.
+D. J. Griffiths, *Introduction to Electrodynamics*, ch. 2, from memory); potential
+and field are checked against numerical quadrature of the point-charge integrals
+in the tests.  The ground images are the method of images for a perfectly
+conducting plane (ibid., ch. 3, from memory), the 3-D form of the Maxwell potential-coefficient method
 of the 2-D cross-section (CIGRE Technical Brochure 21, 1980; EPRI *Transmission
 Line Reference Book, 345 kV and Above*, 2nd ed., 1982, ch. 8; from memory).
 
@@ -775,7 +775,13 @@ def electric_potential_segments(points_m, segments: SegmentSet, charges=None) ->
 
 
 def warm_up() -> None:
-    """Compile (or load from the on-disk cache) the numba kernels; call once at start-up.
+    """Compile (or load from numba's on-disk cache) every kernel of this module; call once at start-up.
+
+    With a warm cache this takes well under a second (benchmarks/README.md); without
+    it, several seconds of compilation, which would otherwise fall on the first request.
+    The parallel kernels use numba's threading layer (OpenMP here), which must not be
+    started in a process that later forks: call this in each server worker after the
+    fork (e.g. gunicorn's ``post_fork``), not in a preloading master.
 
     Returns
     -------
@@ -785,5 +791,7 @@ def warm_up() -> None:
     b = np.array([[10.0, 0.0, 10.0], [20.0, 0.0, 10.0]])
     seg = SegmentSet(a, b, np.zeros(2, complex), np.zeros(2, np.int64), np.array([1.0 + 0j]),
                      np.array([0.01]), np.array([False]))
-    electric_field_segments(np.array([[5.0, 1.0, 1.0], [5.0, 0.02, 10.0]]), seg)
-
+    pts = np.array([[5.0, 1.0, 1.0], [5.0, 0.02, 10.0]])
+    charges = line_charges(seg)
+    electric_field_segments(pts, seg, charges)
+    electric_potential_segments(pts, seg, charges)
