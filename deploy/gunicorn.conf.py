@@ -19,3 +19,6 @@ accesslog = "-"  # stdout
 errorlog = "-"
 loglevel = os.environ.get("EMF_LOG_LEVEL", "info").lower()
 capture_output = True
+# No runtime control socket (gunicorn >= 25.1): one shared default path would collide when
+# several instances run on one host (the demo beside the tests); older versions ignore the name.
+control_socket_disable = True
