@@ -548,8 +548,18 @@ def line_charges(segments: SegmentSet) -> np.ndarray:
     with ``P`` from :func:`matching_matrix`.
     ``P`` is real, so the real and imaginary parts of ``V`` are solved together as
     two right-hand sides of one LU factorisation (``numpy.linalg.solve``).
-    Method: charge simulation with images in a perfectly conducting ground
-    (CIGRE TB 21, 1980; EPRI Transmission Line Reference Book, 1982, ch. 8; from memory).
+    Method: charge simulation with images in a perfectly conducting ground [1]_, [2]_,
+    with the finite-segment potential of [3]_ (module notes).
+
+    References
+    ----------
+    .. [1] CIGRE Working Group 36.01, "Electric and magnetic fields produced by
+       transmission systems", Technical Brochure 21, 1980 (from memory).
+    .. [2] J. D. Deno and L. E. Zaffanella, "Field effects of overhead transmission
+       lines and stations", ch. 8 in *Transmission Line Reference Book, 345 kV and
+       Above*, 2nd ed., EPRI, 1982 (from memory).
+    .. [3] D. J. Griffiths, *Introduction to Electrodynamics*, 4th ed., chs. 2-3
+       (finite line charge, method of images; from memory).
     """
     _check_segments(segments)
     mask = _active(segments)
@@ -714,6 +724,11 @@ def electric_field_segments(points_m, segments: SegmentSet, charges=None, *,
     ``d2 = p - B``, ``S = r1 + r2``; this is ``-grad`` of ``k q ln((S+L)/(S-L))``.
     Each image (z negated) adds the same with ``-q``.  The kernel is compiled
     with numba (parallel over blocks of points, segments in L1-sized blocks).
+
+    References
+    ----------
+    .. [1] D. J. Griffiths, *Introduction to Electrodynamics*, 4th ed., chs. 2-3
+       (field of a finite line charge, method of images; from memory).
 
     Examples
     --------
