@@ -368,10 +368,16 @@ def _check_segments(segments: SegmentSet) -> None:
     for name in ("wire_voltage_v", "wire_screened"):
         if np.asarray(getattr(segments, name)).shape != (nw,):
             raise must_be(f"segments.{name}", f"an array of shape ({nw},)", np.asarray(getattr(segments, name)).shape)
-    bad = ~(np.isfinite(start).all(axis=1) & np.isfinite(end).all(axis=1))
-    if bad.any():
-        j = int(np.flatnonzero(bad)[0])
-        raise must_be(f"segments.start_m[{j}]", "finite", start[j].tolist())
+    for name, arr in (("start_m", start), ("end_m", end)):
+        bad = ~np.isfinite(arr).all(axis=1)
+        if bad.any():
+            j = int(np.flatnonzero(bad)[0])
+            raise must_be(f"segments.{name}[{j}]", "finite", arr[j].tolist())
+    volts = np.asarray(segments.wire_voltage_v)
+    badv = ~np.isfinite(volts)
+    if badv.any():
+        w = int(np.flatnonzero(badv)[0])
+        raise must_be(f"segments.wire_voltage_v[{w}]", "finite", complex(volts[w]))
     radius = np.asarray(segments.wire_radius_m, dtype=float)
     active = ~np.asarray(segments.wire_screened, dtype=bool)
     badr = active & ~(radius > 0)

@@ -617,3 +617,11 @@ def test_bad_segments():
     with pytest.raises(GeometryError) as err:
         e3.line_charges(rad)
     assert err.value.field == "segments.wire_radius_m[0]"
+    nan_end = polyline_set([np.array([[0.0, 0.0, 5.0], [1.0, 0.0, 5.0], [2.0, np.nan, 5.0]])], [1e5], [0.01])
+    with pytest.raises(EngineInputError) as err:
+        e3.line_charges(nan_end)
+    assert err.value.field == "segments.end_m[1]"
+    nan_v = polyline_set([np.array([[0.0, 0.0, 5.0], [1.0, 0.0, 5.0]])], [complex(np.inf, 0.0)], [0.01])
+    with pytest.raises(EngineInputError) as err:
+        e3.line_charges(nan_v)
+    assert err.value.field == "segments.wire_voltage_v[0]"
