@@ -113,6 +113,30 @@ def magpylib_b(points: np.ndarray, start: np.ndarray, end: np.ndarray, current: 
     return out
 
 
+def peak_memory(n_points: int) -> tuple[float, float, float, float]:
+    """Peak RSS [MiB] of a fresh process: after start-up, with the points, after evaluating B on them."""
+    code = f"""
+import resource, time, sys
+sys.path.insert(0, {str(ROOT)!r})
+import numpy as np
+from benchmarks.route_magnetic import scenario, grid
+from models.route.discretise import discretise_route
+from models.route.magnetic3d import flux_density_segments, warm_up
+warm_up()
+route = scenario()
+segs = discretise_route(route, tolerance_m=0.005)
+rss = lambda: resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+r0 = rss()
+pts = grid(route, {n_points})
+r1 = rss()
+t0 = time.perf_counter()
+b = flux_density_segments(pts, segs)
+print(r0, r1, rss(), time.perf_counter() - t0)
+"""
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=ROOT)
+    return tuple(float(v) for v in out.stdout.split())
+
+
 def first_call_latency() -> tuple[float, float, float]:
     """(cold, warm, import) seconds for import + warm_up() in fresh processes with a private cache dir."""
     code = ("import time; t0 = time.perf_counter(); import models.route.magnetic3d as m; t1 = time.perf_counter();"
@@ -197,14 +221,10 @@ def main() -> None:
     print("linear  : " + ", ".join(line))
 
     if not args.quick:
-        rss0 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-        big = grid(route, 1_000_000)
-        rss1 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-        t = best_time(lambda: flux_density_segments(big, segs), 1)
-        rss2 = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-        print(f"memory  : 1,000,000 points in {t:.2f} s; peak RSS {rss0:.0f} MiB before the grid, {rss1:.0f} MiB with "
-              f"the grid (24 MB), {rss2:.0f} MiB after the call (output 48 MB; chunks of 65,536 points)")
-        del big
+        rss = peak_memory(2_000_000)
+        print(f"memory  : fresh process, 2,000,000 points: peak RSS {rss[0]:.0f} MiB after import + warm_up, "
+              f"{rss[1]:.0f} MiB with the points (48 MB), {rss[2]:.0f} MiB after the call (output 96 MB; "
+              f"chunks of 65,536 points); call {rss[3]:.1f} s")
 
     cold, warm, imp = first_call_latency()
     print(f"startup : fresh process, import + warm_up(): cold cache {cold:.2f} s, warm disk cache {warm:.2f} s "

@@ -113,31 +113,36 @@ _SWEEP = 4  # links per sweep of the field kernel
 def _runs(start, end, cur):
     """Group segments into runs: continuous polylines of one current, padded to whole sweeps.
 
-    Returns ``(verts, run_start, run_links, run_current)``: run r's links join vertices
-    ``run_start[r] + j`` and ``+ j + 1`` for j < run_links[r] (a multiple of 4); padding
-    links repeat the last vertex (zero length: they add exactly nothing).  Segments with
-    zero current or zero length are dropped.
+    Returns ``(verts, run_start, run_links, run_current, run_box)``: run r's links join
+    vertices ``run_start[r] + j`` and ``+ j + 1`` for j < run_links[r] (a multiple of 4);
+    padding links repeat the last vertex (zero length: they add exactly nothing).
+    ``run_box[r]`` = (xmin, xmax, ymin, ymax, zmin, zmax, (longest link / 30)^2).
+    Segments with zero current or zero length are dropped.
     """
     keep = (cur != 0) & np.any(start != end, axis=1)
     start, end, cur = start[keep], end[keep], cur[keep]
     m = len(start)
     if m == 0:
-        return np.zeros((1, 3)), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, complex)
+        return np.zeros((1, 3)), np.zeros(0, np.int64), np.zeros(0, np.int64), np.zeros(0, complex), np.zeros((0, 7))
     brk = ~(np.all(end[:-1] == start[1:], axis=1) & (cur[:-1] == cur[1:]))
     first = np.flatnonzero(np.concatenate([[True], brk]))
     stop = np.concatenate([first[1:], [m]])
     pieces, run_start, run_links = [], [], []
+    run_box = np.empty((len(first), 7))
     pos = 0
-    for a, b in zip(first, stop):
+    for r, (a, b) in enumerate(zip(first, stop)):
         links = b - a
         pad = -links % _SWEEP
         v = np.vstack([start[a:b], end[b - 1:b], np.repeat(end[b - 1:b], pad, axis=0)])
+        run_box[r, 0:6:2] = v.min(axis=0)
+        run_box[r, 1:6:2] = v.max(axis=0)
+        run_box[r, 6] = (np.max(np.linalg.norm(end[a:b] - start[a:b], axis=1)) / 30.0) ** 2
         pieces.append(v)
         run_start.append(pos)
         run_links.append(links + pad)
         pos += len(v)
     return (np.vstack(pieces), np.asarray(run_start, np.int64), np.asarray(run_links, np.int64),
-            np.ascontiguousarray(cur[first]))
+            np.ascontiguousarray(cur[first]), run_box)
 
 
 def _polylines(start, end, cur, rad):
@@ -235,14 +240,18 @@ def _build_kernels():
     fm = {"contract", "reassoc", "nsz", "arcp"}
 
     @nb.njit(parallel=True, fastmath=fm, cache=True, nogil=True, boundscheck=False)
-    def field_kernel(px, py, pz, vx, vy, vz, run_start, run_links, run_re, run_im, scale, out, tile):  # pragma: no cover
+    def field_kernel(px, py, pz, vx, vy, vz, run_start, run_links, run_re, run_im, run_box, scale, out,  # pragma: no cover
+                     tile):
         # Points in tiles (parallel over tiles).  For each run (a polyline of one current,
         # links k -> k+1 for k in run_start .. run_start + run_links, run_links a multiple
         # of 4), the links are swept four at a time; the inner loop runs over the tile's
         # points (SIMD lanes) and carries |p - v_k| from one link to the next, so each
         # vertex costs one square root.  The geometric sum of a run is multiplied by its
         # current (real and imaginary parts) once at the end of the run.  A tile's arrays
-        # (13 x tile doubles) stay in L1, the vertex arrays in L2.
+        # (13 x tile doubles) stay in L1, the vertex arrays in L2.  Where the tile's bounding
+        # box is farther from the run's than 1/30 of its longest link (run_box[r, 6] holds that
+        # distance squared), eq. (1) loses nothing to cancellation (< 1e-13) and the sweep uses
+        # it; otherwise it uses eq. (2) where R1 . R2 < 0.
         n = px.shape[0]
         nr = run_start.shape[0]
         ntile = (n + tile - 1) // tile
@@ -263,8 +272,18 @@ def _build_kernels():
             s3 = np.zeros(m)
             s4 = np.zeros(m)
             s5 = np.zeros(m)
+            x0 = qx.min()
+            x1 = qx.max()
+            y0 = qy.min()
+            y1 = qy.max()
+            z0 = qz.min()
+            z1 = qz.max()
             for r in range(nr):
                 k0 = run_start[r]
+                gx = max(0.0, run_box[r, 0] - x1, x0 - run_box[r, 1])
+                gy = max(0.0, run_box[r, 2] - y1, y0 - run_box[r, 3])
+                gz = max(0.0, run_box[r, 4] - z1, z0 - run_box[r, 5])
+                far = gx * gx + gy * gy + gz * gz > run_box[r, 6]
                 for i in range(m):
                     dx = qx[i] - vx[k0]
                     dy = qy[i] - vy[k0]
@@ -289,79 +308,138 @@ def _build_kernels():
                     v4x = vx[k + 4]
                     v4y = vy[k + 4]
                     v4z = vz[k + 4]
-                    for i in range(m):
-                        x = qx[i]
-                        y = qy[i]
-                        z = qz[i]
-                        # Each link: R1 = p - v_k (a*), R2 = p - v_k+1 (b*), c = R1 x R2, and
-                        # eq. (1), or its cancellation-free form (2) when R1 . R2 < 0.  The tiny
-                        # term keeps 0/0 (a point on a link's line, where c = 0) finite; points
-                        # inside a wire are caught by the inside kernel.
-                        ax = x - v0x
-                        ay = y - v0y
-                        az = z - v0z
-                        n1 = an[i]
-                        bx = x - v1x
-                        by = y - v1y
-                        bz = z - v1z
-                        n2 = math.sqrt(bx * bx + by * by + bz * bz)
-                        cx = ay * bz - az * by
-                        cy = az * bx - ax * bz
-                        cz = ax * by - ay * bx
-                        nn = n1 * n2
-                        dot = ax * bx + ay * by + az * bz
-                        neg = dot < 0.0
-                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
-                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
-                        ux = cx * f
-                        uy = cy * f
-                        uz = cz * f
-                        ax = x - v2x
-                        ay = y - v2y
-                        az = z - v2z
-                        n1 = math.sqrt(ax * ax + ay * ay + az * az)
-                        cx = by * az - bz * ay
-                        cy = bz * ax - bx * az
-                        cz = bx * ay - by * ax
-                        nn = n1 * n2
-                        dot = ax * bx + ay * by + az * bz
-                        neg = dot < 0.0
-                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
-                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
-                        ux += cx * f
-                        uy += cy * f
-                        uz += cz * f
-                        bx = x - v3x
-                        by = y - v3y
-                        bz = z - v3z
-                        n2 = math.sqrt(bx * bx + by * by + bz * bz)
-                        cx = ay * bz - az * by
-                        cy = az * bx - ax * bz
-                        cz = ax * by - ay * bx
-                        nn = n1 * n2
-                        dot = ax * bx + ay * by + az * bz
-                        neg = dot < 0.0
-                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
-                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
-                        ux += cx * f
-                        uy += cy * f
-                        uz += cz * f
-                        ax = x - v4x
-                        ay = y - v4y
-                        az = z - v4z
-                        n1 = math.sqrt(ax * ax + ay * ay + az * az)
-                        cx = by * az - bz * ay
-                        cy = bz * ax - bx * az
-                        cz = bx * ay - by * ax
-                        nn = n1 * n2
-                        dot = ax * bx + ay * by + az * bz
-                        neg = dot < 0.0
-                        f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
-                            nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
-                        tx[i] += ux + cx * f
-                        ty[i] += uy + cy * f
-                        tz[i] += uz + cz * f
-                        an[i] = n1
+                    if far:  # eq. (1)
+                        for i in range(m):
+                            x = qx[i]
+                            y = qy[i]
+                            z = qz[i]
+                            ax = x - v0x
+                            ay = y - v0y
+                            az = z - v0z
+                            n1 = an[i]
+                            bx = x - v1x
+                            by = y - v1y
+                            bz = z - v1z
+                            n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                            cx = ay * bz - az * by
+                            cy = az * bx - ax * bz
+                            cz = ax * by - ay * bx
+                            nn = n1 * n2
+                            f = (n1 + n2) / (nn * (nn + ax * bx + ay * by + az * bz) + 1e-300)
+                            ux = cx * f
+                            uy = cy * f
+                            uz = cz * f
+                            ax = x - v2x
+                            ay = y - v2y
+                            az = z - v2z
+                            n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                            cx = by * az - bz * ay
+                            cy = bz * ax - bx * az
+                            cz = bx * ay - by * ax
+                            nn = n1 * n2
+                            f = (n1 + n2) / (nn * (nn + ax * bx + ay * by + az * bz) + 1e-300)
+                            ux += cx * f
+                            uy += cy * f
+                            uz += cz * f
+                            bx = x - v3x
+                            by = y - v3y
+                            bz = z - v3z
+                            n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                            cx = ay * bz - az * by
+                            cy = az * bx - ax * bz
+                            cz = ax * by - ay * bx
+                            nn = n1 * n2
+                            f = (n1 + n2) / (nn * (nn + ax * bx + ay * by + az * bz) + 1e-300)
+                            ux += cx * f
+                            uy += cy * f
+                            uz += cz * f
+                            ax = x - v4x
+                            ay = y - v4y
+                            az = z - v4z
+                            n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                            cx = by * az - bz * ay
+                            cy = bz * ax - bx * az
+                            cz = bx * ay - by * ax
+                            nn = n1 * n2
+                            f = (n1 + n2) / (nn * (nn + ax * bx + ay * by + az * bz) + 1e-300)
+                            tx[i] += ux + cx * f
+                            ty[i] += uy + cy * f
+                            tz[i] += uz + cz * f
+                            an[i] = n1
+                    else:  # eq. (1), or (2) where R1 . R2 < 0
+                        for i in range(m):
+                            x = qx[i]
+                            y = qy[i]
+                            z = qz[i]
+                            # Each link: R1 = p - v_k (a*), R2 = p - v_k+1 (b*), c = R1 x R2, and
+                            # eq. (1), or its cancellation-free form (2) when R1 . R2 < 0.  The tiny
+                            # term keeps 0/0 (a point on a link's line, where c = 0) finite; points
+                            # inside a wire are caught by the inside kernel.
+                            ax = x - v0x
+                            ay = y - v0y
+                            az = z - v0z
+                            n1 = an[i]
+                            bx = x - v1x
+                            by = y - v1y
+                            bz = z - v1z
+                            n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                            cx = ay * bz - az * by
+                            cy = az * bx - ax * bz
+                            cz = ax * by - ay * bx
+                            nn = n1 * n2
+                            dot = ax * bx + ay * by + az * bz
+                            neg = dot < 0.0
+                            f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                                nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                            ux = cx * f
+                            uy = cy * f
+                            uz = cz * f
+                            ax = x - v2x
+                            ay = y - v2y
+                            az = z - v2z
+                            n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                            cx = by * az - bz * ay
+                            cy = bz * ax - bx * az
+                            cz = bx * ay - by * ax
+                            nn = n1 * n2
+                            dot = ax * bx + ay * by + az * bz
+                            neg = dot < 0.0
+                            f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                                nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                            ux += cx * f
+                            uy += cy * f
+                            uz += cz * f
+                            bx = x - v3x
+                            by = y - v3y
+                            bz = z - v3z
+                            n2 = math.sqrt(bx * bx + by * by + bz * bz)
+                            cx = ay * bz - az * by
+                            cy = az * bx - ax * bz
+                            cz = ax * by - ay * bx
+                            nn = n1 * n2
+                            dot = ax * bx + ay * by + az * bz
+                            neg = dot < 0.0
+                            f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                                nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                            ux += cx * f
+                            uy += cy * f
+                            uz += cz * f
+                            ax = x - v4x
+                            ay = y - v4y
+                            az = z - v4z
+                            n1 = math.sqrt(ax * ax + ay * ay + az * az)
+                            cx = by * az - bz * ay
+                            cy = bz * ax - bx * az
+                            cz = bx * ay - by * ax
+                            nn = n1 * n2
+                            dot = ax * bx + ay * by + az * bz
+                            neg = dot < 0.0
+                            f = ((n1 + n2) * ((nn - dot) if neg else 1.0)) / (
+                                nn * ((cx * cx + cy * cy + cz * cz) if neg else (nn + dot)) + 1e-300)
+                            tx[i] += ux + cx * f
+                            ty[i] += uy + cy * f
+                            tz[i] += uz + cz * f
+                            an[i] = n1
                 cr = run_re[r]
                 ci = run_im[r]
                 for i in range(m):
@@ -508,7 +586,7 @@ def flux_density_segments(
     vx, vy, vz = (np.ascontiguousarray(verts[:, k]) for k in range(3))
     r2 = np.ascontiguousarray(link_rad**2)
     box = _link_boxes(verts, link_rad, _INSIDE_BLOCK)
-    rverts, run_start, run_links, run_cur = _runs(start, end, cur)
+    rverts, run_start, run_links, run_cur, run_box = _runs(start, end, cur)
     wx, wy, wz = (np.ascontiguousarray(rverts[:, k]) for k in range(3))
     run_re = np.ascontiguousarray(run_cur.real)
     run_im = np.ascontiguousarray(run_cur.imag)
@@ -521,7 +599,8 @@ def flux_density_segments(
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(p[lo:hi, k]) for k in range(3))
-        field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, _K, ov[lo:hi], int(tile))
+        field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
+                     int(tile))
         inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
     hits = hit >= 0
     if on_conductor == "mask":

@@ -125,7 +125,12 @@ class SegmentSet:
     -----
     Built by :func:`models.route.discretise.discretise_route`.  The segments of
     one wire are consecutive rows and form a continuous polyline from the first
-    support to the last (``end_m[i] == start_m[i + 1]`` exactly within a wire).
+    support to the last (``end_m[i] == start_m[i + 1]`` exactly within a wire);
+    currents flow that way.  Wires come in input order: each circuit's conductors
+    (for B every bundle subconductor separately, carrying I / n; with
+    ``for_electric=True`` one wire per bundle along its centre, radius = equivalent
+    bundle radius, current = the phase current), then the earth wires.
+    ``max_segment_m`` caps the horizontal segment length of bundle centres.
     """
 
     start_m: np.ndarray
