@@ -20,10 +20,11 @@ where ``v_i`` is the *offset vector* of support i:
     *both* adjoining spans: every span's conductor runs parallel to the centre
     line at its stated offset, so a mid-span cross-section has exactly the phase
     spacing of the 2-D cross-section the user describes, and the cross-arm
-    distance along the bisector is offset / cos(delta/2).  This is the common
-    practice for angle towers (cross-arms widened so that the perpendicular phase
-    spacing is kept) and the only choice under which ``offset_m`` means the same
-    thing as in :class:`models.geometry.Conductor`.
+    distance along the bisector is offset / cos(delta/2).  Angle towers carry
+    their cross-arms along the bisector (common practice) and are made wider for
+    larger deviations to keep the phase spacing (from memory); above all, this is
+    the only choice under which ``offset_m`` means the same thing as in
+    :class:`models.geometry.Conductor`, so it is ours.
 ``"along_bisector"``
     ``v_i`` is the bisector unit vector: ``offset_m`` is the distance along the
     cross-arm; the perpendicular spacing in the adjoining spans is reduced to

@@ -14,6 +14,8 @@ import math
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import integrate, optimize
 
 from models.errors import GeometryError
@@ -149,3 +151,21 @@ def test_invalid_sag(span, dh, sag, field):
     with pytest.raises(GeometryError, match=field) as info:
         catenary_constant_from_sag(span, dh, sag)
     assert info.value.field == field
+
+
+@settings(max_examples=60, deadline=None)
+@given(span=st.floats(20.0, 1500.0), slope=st.floats(-0.4, 0.4), sag_ratio=st.floats(1e-5, 0.12))
+def test_sag_round_trip_and_geometry_invariants(span, slope, sag_ratio):
+    # Self-consistency of the closed forms over a wide range (property-based, hypothesis):
+    # the solved C reproduces the sag, the curve passes through both attachments, hangs below
+    # the chord, and is longer than the chord.
+    dh, sag = slope * span, sag_ratio * span
+    c = catenary_constant_from_sag(span, dh, sag)
+    s = CatenarySpan(span, dh, c)
+    assert s.midspan_sag_m == pytest.approx(sag, rel=1e-9)
+    assert s.height_m(0.0) == pytest.approx(0.0, abs=1e-9 * span)
+    assert s.height_m(span) == pytest.approx(dh, abs=1e-9 * span)
+    x = np.linspace(0.0, span, 33)
+    assert np.all(s.height_m(x) <= dh * x / span + 1e-9 * span)
+    assert s.length_m > math.hypot(span, dh)
+    assert s.lowest_height_m <= min(0.0, dh) + 1e-12 * span

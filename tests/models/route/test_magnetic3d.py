@@ -243,3 +243,14 @@ def test_invalid_input(kwargs, field):
 
 def test_warm_up_returns_elapsed_seconds():
     assert warm_up() >= 0.0
+
+
+def test_scaling_with_geometry():
+    # Biot–Savart scaling law: B(a * geometry) = B(geometry) / a at the same current
+    # (dimensional analysis, as in magpylib's own scaling tests).
+    segs = discretise_route(_demo_route(), tolerance_m=0.1)
+    pts = np.array([[100.0, 5.0, 1.0], [420.0, 60.0, 3.0], [700.0, 200.0, 30.0]])
+    b = flux_density_segments(pts, segs)
+    for a in (0.01, 7.0):
+        ba = flux_density_segments(a * pts, (a * segs.start_m, a * segs.end_m), current_a=segs.current_a)
+        np.testing.assert_allclose(ba * a, b, rtol=1e-12, atol=1e-12 * np.abs(b).max())
