@@ -72,8 +72,8 @@ K_E = 1.0 / (4.0 * math.pi * EPS0_F_PER_M)
 DEFAULT_CHUNK_SIZE = 65536
 """Observation points per call of the field kernel (bounds the working memory)."""
 
-_POINT_BLOCK = 64      # points per cache block in the field kernel
-_SEGMENT_BLOCK = 256   # segments per cache block (7 float64 per vertex + 2 scratch: 18 KiB, fits L1)
+_POINT_BLOCK = 64      # points per tile in the field kernel (SIMD lanes; 11 x 64 doubles in L1)
+_SEGMENT_BLOCK = 256   # segments per block in the matching-matrix kernel
 _BOX_GROUP = 16        # segments per bounding box in the inside-a-wire test
 
 
@@ -134,7 +134,7 @@ def _potential_matrix_kernel(pts, seg_a, seg_b, out):  # pragma: no cover - comp
 def _matching_matrix_kernel(mp, vert, sdir, blocks, out):  # pragma: no cover - compiled
     """out[i, j] = mean over the matching points mp[i, :] of the ln ratio of segment j (one log per entry).
 
-    Segments as polylines (see _field_kernel): ``vert`` (3, nv) vertices, ``sdir[:, k]`` =
+    Segments as polylines (see _polylines): ``vert`` (3, nv) vertices, ``sdir[:, k]`` =
     ux, uy, uz, L of the segment starting at vertex k, ``blocks[b] = (k0, k1, col0)``:
     segments k0..k1-1 are matrix columns col0..col0+k1-k0-1.  Vertex distances are shared
     by adjacent segments.  For each point the ratio ``(S+L)(S'-L) / ((S-L)(S'+L))`` is
@@ -209,78 +209,102 @@ def _matching_matrix_kernel(mp, vert, sdir, blocks, out):  # pragma: no cover - 
 
 
 @numba.njit(parallel=True, cache=True, fastmath=True, error_model="numpy", boundscheck=False)
-def _field_kernel(pts, vert, sdat, blocks, out):  # pragma: no cover - compiled
+def _field_kernel(pts, vert, sdat, runs, out):  # pragma: no cover - compiled
     """Field of all charged segments + images at pts (without the factor k = 1/(4 pi eps0)).
 
-    Segments are stored as polylines: segment k joins vertices k and k+1 of ``vert``
-    (rows x, y, z; shape (3, nv)); ``sdat[:, k]`` = 2L, L, q_re, q_im of that segment.
-    ``blocks[b] = (k0, k1, .)``: segments k0..k1-1 of one polyline, at most _SEGMENT_BLOCK.
-    Distances to a vertex (and to its image) are computed once and shared by the two
-    segments meeting there: 2 square roots + 1 division per segment-point pair.
-    out[i, c, 0/1]: real/imag part of component c.
+    Segments are stored as polylines (see _pack_segments): link k joins vertices k and
+    k+1 of ``vert`` (rows x, y, z); ``sdat[:, k]`` = 2L, L, q_re, q_im of that link;
+    ``runs[r] = (k0, n)``: links k0..k0+n-1 form one polyline, n even (a zero-length,
+    zero-charge link pads odd polylines).  out[i, c, 0/1]: real/imag part of component c.
 
-    Threads take blocks of _POINT_BLOCK points; each point sweeps a segment block (its
-    slice of ``vert``/``sdat``, 7 KiB, stays in L1) in two loops that LLVM vectorises
-    (AVX2): the loops run over slices with ``range(n)`` so that no negative-index
-    wrap-around blocks vectorisation, and the error model is numpy's (no
-    ZeroDivisionError branch).  Points inside a wire must be rejected beforehand.
+    Threads take tiles of _POINT_BLOCK points; the innermost loop runs over the tile's
+    points (SIMD lanes, vectorised by LLVM: numpy error model, no wrap-around indexing)
+    and sweeps two links at a time, carrying the distances to the shared vertex (and
+    to its image) from one link to the next: 2 square roots + 1 division per
+    segment-point pair, accumulators loaded and stored once per two links.  The tile's
+    arrays (11 x 64 doubles) stay in L1.  Points inside a wire must be rejected beforehand.
     """
     n = pts.shape[0]
-    nblocks = (n + _POINT_BLOCK - 1) // _POINT_BLOCK
-    for blk in numba.prange(nblocks):
-        i0 = blk * _POINT_BLOCK
-        i1 = min(i0 + _POINT_BLOCK, n)
-        acc = np.zeros((_POINT_BLOCK, 6))
-        rv = np.empty(_SEGMENT_BLOCK + 1)
-        rvi = np.empty(_SEGMENT_BLOCK + 1)
-        for b in range(blocks.shape[0]):
-            k0 = blocks[b, 0]
-            k1 = blocks[b, 1]
-            ns = k1 - k0
-            vx = vert[0, k0:k1 + 1]
-            vy = vert[1, k0:k1 + 1]
-            vz = vert[2, k0:k1 + 1]
-            s_2l = sdat[0, k0:k1]
-            s_l = sdat[1, k0:k1]
-            s_qr = sdat[2, k0:k1]
-            s_qi = sdat[3, k0:k1]
-            for p in range(i1 - i0):
-                px = pts[i0 + p, 0]
-                py = pts[i0 + p, 1]
-                pz = pts[i0 + p, 2]
-                for t in range(ns + 1):
-                    dx = px - vx[t]
-                    dy = py - vy[t]
-                    dz = pz - vz[t]
-                    dzi = pz + vz[t]          # image vertex: z negated
-                    h = dx * dx + dy * dy
-                    rv[t] = math.sqrt(h + dz * dz)
-                    rvi[t] = math.sqrt(h + dzi * dzi)
-                exr = 0.0
-                exi = 0.0
-                eyr = 0.0
-                eyi = 0.0
-                ezr = 0.0
-                ezi = 0.0
-                for t in range(ns):
-                    d1x = px - vx[t]
-                    d1y = py - vy[t]
-                    d1z = pz - vz[t]
-                    d2x = px - vx[t + 1]
-                    d2y = py - vy[t + 1]
-                    d2z = pz - vz[t + 1]
-                    d1zi = pz + vz[t]
-                    d2zi = pz + vz[t + 1]
-                    r1 = rv[t]
-                    r2 = rv[t + 1]
-                    r1i = rvi[t]
-                    r2i = rvi[t + 1]
-                    length = s_l[t]
+    ntile = (n + _POINT_BLOCK - 1) // _POINT_BLOCK
+    vx = vert[0]
+    vy = vert[1]
+    vz = vert[2]
+    for tb in numba.prange(ntile):
+        lo = tb * _POINT_BLOCK
+        hi = min(lo + _POINT_BLOCK, n)
+        m = hi - lo
+        qx = pts[lo:hi, 0].copy()
+        qy = pts[lo:hi, 1].copy()
+        qz = pts[lo:hi, 2].copy()
+        r1a = np.empty(m)
+        r1ia = np.empty(m)
+        s0 = np.zeros(m)
+        s1 = np.zeros(m)
+        s2 = np.zeros(m)
+        s3 = np.zeros(m)
+        s4 = np.zeros(m)
+        s5 = np.zeros(m)
+        for r in range(runs.shape[0]):
+            k0 = runs[r, 0]
+            nl = runs[r, 1]
+            ax = vx[k0]
+            ay = vy[k0]
+            az = vz[k0]
+            for i in range(m):
+                dx = qx[i] - ax
+                dy = qy[i] - ay
+                dz = qz[i] - az
+                dzi = qz[i] + az
+                h = dx * dx + dy * dy
+                r1a[i] = math.sqrt(h + dz * dz)
+                r1ia[i] = math.sqrt(h + dzi * dzi)
+            for k in range(k0, k0 + nl, 2):
+                ax = vx[k]
+                ay = vy[k]
+                az = vz[k]
+                b0x = vx[k + 1]
+                b0y = vy[k + 1]
+                b0z = vz[k + 1]
+                tl_0 = sdat[0, k + 0]
+                l2_0 = sdat[1, k + 0] * sdat[1, k + 0]
+                qr_0 = sdat[2, k + 0]
+                qi_0 = sdat[3, k + 0]
+                b1x = vx[k + 2]
+                b1y = vy[k + 2]
+                b1z = vz[k + 2]
+                tl_1 = sdat[0, k + 1]
+                l2_1 = sdat[1, k + 1] * sdat[1, k + 1]
+                qr_1 = sdat[2, k + 1]
+                qi_1 = sdat[3, k + 1]
+                for i in range(m):
+                    x = qx[i]
+                    y = qy[i]
+                    z = qz[i]
+                    d1x = x - ax
+                    d1y = y - ay
+                    d1z = z - az
+                    d1zi = z + az
+                    r1 = r1a[i]
+                    r1i = r1ia[i]
+                    e0 = s0[i]
+                    e1 = s1[i]
+                    e2 = s2[i]
+                    e3 = s3[i]
+                    e4 = s4[i]
+                    e5 = s5[i]
+                    # link k + 0: vertices k + 0 -> k + 1
+                    d2x = x - b0x
+                    d2y = y - b0y
+                    d2z = z - b0z
+                    d2zi = z + b0z              # image vertex: z negated
+                    h2 = d2x * d2x + d2y * d2y
+                    r2 = math.sqrt(h2 + d2z * d2z)
+                    r2i = math.sqrt(h2 + d2zi * d2zi)
                     ssum = r1 + r2
                     si = r1i + r2i
-                    den = r1 * r2 * (ssum * ssum - length * length)
-                    deni = r1i * r2i * (si * si - length * length)
-                    inv = s_2l[t] / (den * deni)     # one division for segment and image
+                    den = r1 * r2 * (ssum * ssum - l2_0)
+                    deni = r1i * r2i * (si * si - l2_0)
+                    inv = tl_0 / (den * deni)     # one division for segment and image
                     f = inv * deni
                     fi = inv * den
                     # g = f (d1 r2 + d2 r1) - fi (d1' r2' + d2' r1'); d1', d2' differ only in z
@@ -293,24 +317,64 @@ def _field_kernel(pts, vert, sdat, blocks, out):  # pragma: no cover - compiled
                     gx = d1x * w1 + d2x * w2
                     gy = d1y * w1 + d2y * w2
                     gz = d1z * c1 + d2z * c2 - d1zi * c1i - d2zi * c2i
-                    qr = s_qr[t]
-                    qi = s_qi[t]
-                    exr += qr * gx
-                    exi += qi * gx
-                    eyr += qr * gy
-                    eyi += qi * gy
-                    ezr += qr * gz
-                    ezi += qi * gz
-                acc[p, 0] += exr
-                acc[p, 1] += exi
-                acc[p, 2] += eyr
-                acc[p, 3] += eyi
-                acc[p, 4] += ezr
-                acc[p, 5] += ezi
-        for p in range(i1 - i0):
-            for c in range(3):
-                out[i0 + p, c, 0] = acc[p, 2 * c]
-                out[i0 + p, c, 1] = acc[p, 2 * c + 1]
+                    e0 += qr_0 * gx
+                    e1 += qi_0 * gx
+                    e2 += qr_0 * gy
+                    e3 += qi_0 * gy
+                    e4 += qr_0 * gz
+                    e5 += qi_0 * gz
+                    d1x = d2x
+                    d1y = d2y
+                    d1z = d2z
+                    d1zi = d2zi
+                    r1 = r2
+                    r1i = r2i
+                    # link k + 1: vertices k + 1 -> k + 2
+                    d2x = x - b1x
+                    d2y = y - b1y
+                    d2z = z - b1z
+                    d2zi = z + b1z              # image vertex: z negated
+                    h2 = d2x * d2x + d2y * d2y
+                    r2 = math.sqrt(h2 + d2z * d2z)
+                    r2i = math.sqrt(h2 + d2zi * d2zi)
+                    ssum = r1 + r2
+                    si = r1i + r2i
+                    den = r1 * r2 * (ssum * ssum - l2_1)
+                    deni = r1i * r2i * (si * si - l2_1)
+                    inv = tl_1 / (den * deni)     # one division for segment and image
+                    f = inv * deni
+                    fi = inv * den
+                    # g = f (d1 r2 + d2 r1) - fi (d1' r2' + d2' r1'); d1', d2' differ only in z
+                    c1 = f * r2
+                    c2 = f * r1
+                    c1i = fi * r2i
+                    c2i = fi * r1i
+                    w1 = c1 - c1i
+                    w2 = c2 - c2i
+                    gx = d1x * w1 + d2x * w2
+                    gy = d1y * w1 + d2y * w2
+                    gz = d1z * c1 + d2z * c2 - d1zi * c1i - d2zi * c2i
+                    e0 += qr_1 * gx
+                    e1 += qi_1 * gx
+                    e2 += qr_1 * gy
+                    e3 += qi_1 * gy
+                    e4 += qr_1 * gz
+                    e5 += qi_1 * gz
+                    s0[i] = e0
+                    s1[i] = e1
+                    s2[i] = e2
+                    s3[i] = e3
+                    s4[i] = e4
+                    s5[i] = e5
+                    r1a[i] = r2
+                    r1ia[i] = r2i
+        for i in range(m):
+            out[lo + i, 0, 0] = s0[i]
+            out[lo + i, 0, 1] = s1[i]
+            out[lo + i, 1, 0] = s2[i]
+            out[lo + i, 1, 1] = s3[i]
+            out[lo + i, 2, 0] = s4[i]
+            out[lo + i, 2, 1] = s5[i]
 
 
 @numba.njit(parallel=True, cache=True, error_model="numpy", boundscheck=False)
@@ -638,27 +702,47 @@ def _polylines(a: np.ndarray, b: np.ndarray):
 def _pack_segments(segments: SegmentSet, charges: np.ndarray):
     """Polyline tables of the charged segments for the field kernel.
 
+    Consecutive segments sharing an end point (``start_m[j] == end_m[j-1]``) form one
+    polyline; an odd polyline gets a zero-length, zero-charge link at its end (its
+    last vertex repeated), so that every run has an even number of links.
+
     Returns
     -------
     vert : ndarray, shape (3, nv)
-        Vertex coordinates [m] (see :func:`_polylines`).
+        Vertex coordinates [m].
     sdat : ndarray, shape (4, nv)
-        Per segment (indexed by its first vertex): 2L, L [m], q_re, q_im [C/m].
-    blocks : int64 ndarray, shape (nb, 3)
-        Segment blocks, see :func:`_polylines`.
+        Per link (indexed by its first vertex): 2L, L [m], q_re, q_im [C/m].
+    runs : int64 ndarray, shape (nr, 2)
+        First vertex and (even) number of links of each polyline.
     """
     mask = _active(segments) & (charges != 0)
     a = np.asarray(segments.start_m, dtype=float)[mask]
     b = np.asarray(segments.end_m, dtype=float)[mask]
     q = charges[mask]
-    vert, k, blocks = _polylines(a, b)
+    m = a.shape[0]
+    new_line = np.ones(m, dtype=bool)
+    if m > 1:
+        new_line[1:] = ~np.all(a[1:] == b[:-1], axis=1)
+    starts = np.flatnonzero(new_line)
+    links = np.diff(np.append(starts, m))
+    padded = links + links % 2
+    first = np.concatenate([[0], np.cumsum(padded + 1)[:-1]]).astype(np.int64)
+    nv = int(np.sum(padded + 1))
+    line_no = np.cumsum(new_line) - 1
+    k = first[line_no] + (np.arange(m) - starts[line_no])
+    vert = np.empty((3, nv))
+    vert[:, k] = a.T
+    vert[:, k + 1] = b.T
+    odd = links % 2 == 1
+    last = first + links                               # last real vertex of each polyline
+    vert[:, last[odd] + 1] = vert[:, last[odd]]         # pad vertex = last vertex
     length = np.linalg.norm(b - a, axis=1)
-    sdat = np.zeros((4, vert.shape[1]))
+    sdat = np.zeros((4, nv))
     sdat[0, k] = 2.0 * length
     sdat[1, k] = length
     sdat[2, k] = q.real
     sdat[3, k] = q.imag
-    return vert, sdat, blocks
+    return vert, sdat, np.column_stack([first, padded]).astype(np.int64).reshape(-1, 2)
 
 
 def _raise_if_inside(pts, segments: SegmentSet, offset: int = 0) -> None:
@@ -757,15 +841,15 @@ def electric_field_segments(points_m, segments: SegmentSet, charges=None, *,
     else:
         _check_segments(segments)
         charges = _check_charges(charges, segments)
-    vert, sdat, blocks = _pack_segments(segments, charges)
+    vert, sdat, runs = _pack_segments(segments, charges)
     n = pts.shape[0]
     out = np.zeros((n, 3, 2))
-    if blocks.shape[0] == 0 or n == 0:
+    if runs.shape[0] == 0 or n == 0:
         return out.view(np.complex128).reshape(n, 3)
     _raise_if_inside(pts, segments)
     for i0 in range(0, n, chunk_size):
         i1 = min(i0 + chunk_size, n)
-        _field_kernel(pts[i0:i1], vert, sdat, blocks, out[i0:i1])
+        _field_kernel(pts[i0:i1], vert, sdat, runs, out[i0:i1])
     out *= K_E
     return out.view(np.complex128).reshape(n, 3)
 
