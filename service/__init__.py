@@ -35,6 +35,10 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     errors.init_app(app)
     storage.init_app(app)
+    if app.config["WARM_UP_ENGINE"]:
+        from models.cross_section import compile_kernels
+
+        compile_kernels()
     _register_blueprints(app)
     return app
 

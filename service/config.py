@@ -36,6 +36,9 @@ DEFAULTS: dict[str, Any] = {
     "LOG_LEVEL": "INFO",
     # Create tables at start-up (set false when the schema is managed elsewhere).
     "CREATE_TABLES": True,
+    # Compile (or load from numba's cache) the engine kernels at start-up, so the first
+    # request of each worker does not pay for it.
+    "WARM_UP_ENGINE": True,
 }
 
 # Documented in README.md "Configuration"; the table there lists these names.
@@ -48,6 +51,7 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
     "EMF_LOG_LEVEL": "application log level",
     "EMF_CREATE_TABLES": "create missing tables at start-up (true/false)",
+    "EMF_WARM_UP_ENGINE": "compile the engine kernels at start-up (true/false)",
 }
 
 
