@@ -45,6 +45,7 @@ References
 from __future__ import annotations
 
 import math
+import threading
 import time
 
 import numpy as np
@@ -89,6 +90,11 @@ def _segment_arrays(segments, current_a=None, radius_m=None):
 
 
 _INSIDE_BLOCK = 16
+
+#: Serialises kernel calls within a process: each call already uses every numba thread,
+#: and numba's fallback "workqueue" threading layer (used when OpenMP/TBB are missing)
+#: aborts on concurrent calls from several Python threads.
+_KERNEL_LOCK = threading.Lock()
 
 
 def _link_boxes(verts, link_rad, block):
@@ -508,7 +514,11 @@ def _get_kernels():
 
 
 def warm_up() -> float:
-    """Compile the kernel (or load it from numba's disk cache) before serving.
+    """Compile the kernels (or load them from numba's disk cache) before serving.
+
+    Call it in every server worker at start-up, after any fork (e.g. in the app
+    factory without ``preload_app``, or gunicorn's ``post_fork``): numba's OpenMP
+    threading layer must not be started in a process that later forks.
 
     Returns
     -------
@@ -599,9 +609,10 @@ def flux_density_segments(
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(p[lo:hi, k]) for k in range(3))
-        field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
-                     int(tile))
-        inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
+        with _KERNEL_LOCK:
+            field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
+                         int(tile))
+            inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
     hits = hit >= 0
     if on_conductor == "mask":
         out[hits] = 0.0

@@ -254,3 +254,24 @@ def test_scaling_with_geometry():
     for a in (0.01, 7.0):
         ba = flux_density_segments(a * pts, (a * segs.start_m, a * segs.end_m), current_a=segs.current_a)
         np.testing.assert_allclose(ba * a, b, rtol=1e-12, atol=1e-12 * np.abs(b).max())
+
+
+def test_concurrent_calls_from_threads_agree():
+    # A threaded server may call the kernel from several request threads at once.
+    import threading
+
+    segs = discretise_route(_demo_route(), tolerance_m=0.1)
+    pts = np.column_stack([np.linspace(0, 800, 3000), np.linspace(-40, 250, 3000), np.full(3000, 1.0)])
+    ref = flux_density_segments(pts, segs)
+    out = [None] * 4
+
+    def work(i):
+        out[i] = flux_density_segments(pts, segs, chunk_size=700)
+
+    threads = [threading.Thread(target=work, args=(i,)) for i in range(4)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    for r in out:
+        np.testing.assert_array_equal(r, ref)
