@@ -219,11 +219,13 @@ class CustomLimitSchema(Schema):
     id = fields.String(required=True, validate=ID_TEXT)
     quantity = fields.String(required=True, validate=validate.OneOf(["E", "B"]))
     value = FiniteFloat(required=True, validate=POSITIVE)
-    unit = fields.String(required=True, validate=validate.OneOf(["kV/m", "V/m", "µT", "uT", "mT", "T"]))
+    unit = fields.String(required=True, validate=validate.OneOf(["kV/m", "V/m", "µT", "μT", "uT", "mT", "T"]))
     title = fields.String(load_default="", validate=validate.Length(max=200))
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> CustomLimit:
+        if data["unit"] == "\u03bcT":  # Greek small mu, as keyboards often give it -> micro sign
+            data["unit"] = "\u00b5T"
         return CustomLimit(**data)
 
 

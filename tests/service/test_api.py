@@ -411,3 +411,11 @@ def test_any_value_anywhere_is_answered_without_500(client, path, value):
     assert response.status_code in (200, 422), response.get_data(as_text=True)
     if response.status_code == 422:
         assert response.mimetype == PROBLEM and response.get_json()["errors"]
+
+
+def test_greek_mu_unit_is_microtesla(client):
+    body = small_body(custom_limits=[{"id": "site", "quantity": "B", "value": 0.4, "unit": "\u03bcT"}])
+    report = client.post("/v1/evaluate", json=body).get_json()
+    assert report["input"]["custom_limits"][0]["unit"] == "\u00b5T"
+    site = next(e for e in report["compliance"] if e["level_id"] == "site")
+    assert site["limit_ut"] == pytest.approx(0.4)
