@@ -208,6 +208,42 @@ def _matching_matrix_kernel(mp, vert, sdir, blocks, out):  # pragma: no cover - 
             out[i, j] = math.log(num[j] / den[j]) * scale
 
 
+@numba.njit(cache=True, inline="always", fastmath=True, error_model="numpy")
+def _link_field(x, y, z, d1x, d1y, d1z, d1zi, r1, r1i, bx, by, bz, two_l, l2):  # pragma: no cover - compiled
+    """Field geometry g of one link (segment + image) from its first vertex's carried values.
+
+    ``d1 = p - A`` (``d1zi = z + A_z`` for the image), ``r1``/``r1i`` the distances to A and
+    its image; ``B`` the second vertex, ``two_l = 2L``, ``l2 = L^2``.  Returns g (so that
+    E = k q g) and the same quantities for B, carried to the next link:
+    ``g = f (d1 r2 + d2 r1) - fi (d1' r2' + d2' r1')``, ``f = 2L / (r1 r2 (S^2 - L^2))``,
+    with one division for segment and image.
+    """
+    d2x = x - bx
+    d2y = y - by
+    d2z = z - bz
+    d2zi = z + bz              # image vertex: z negated
+    h2 = d2x * d2x + d2y * d2y
+    r2 = math.sqrt(h2 + d2z * d2z)
+    r2i = math.sqrt(h2 + d2zi * d2zi)
+    ssum = r1 + r2
+    si = r1i + r2i
+    den = r1 * r2 * (ssum * ssum - l2)
+    deni = r1i * r2i * (si * si - l2)
+    inv = two_l / (den * deni)
+    f = inv * deni
+    fi = inv * den
+    c1 = f * r2
+    c2 = f * r1
+    c1i = fi * r2i
+    c2i = fi * r1i
+    w1 = c1 - c1i
+    w2 = c2 - c2i
+    gx = d1x * w1 + d2x * w2
+    gy = d1y * w1 + d2y * w2
+    gz = d1z * c1 + d2z * c2 - d1zi * c1i - d2zi * c2i
+    return gx, gy, gz, d2x, d2y, d2z, d2zi, r2, r2i
+
+
 @numba.njit(parallel=True, cache=True, fastmath=True, error_model="numpy", boundscheck=False)
 def _field_kernel(pts, vert, sdat, runs, out):  # pragma: no cover - compiled
     """Field of all charged segments + images at pts (without the factor k = 1/(4 pi eps0)).
@@ -292,68 +328,16 @@ def _field_kernel(pts, vert, sdat, runs, out):  # pragma: no cover - compiled
                     e3 = s3[i]
                     e4 = s4[i]
                     e5 = s5[i]
-                    # link k + 0: vertices k + 0 -> k + 1
-                    d2x = x - b0x
-                    d2y = y - b0y
-                    d2z = z - b0z
-                    d2zi = z + b0z              # image vertex: z negated
-                    h2 = d2x * d2x + d2y * d2y
-                    r2 = math.sqrt(h2 + d2z * d2z)
-                    r2i = math.sqrt(h2 + d2zi * d2zi)
-                    ssum = r1 + r2
-                    si = r1i + r2i
-                    den = r1 * r2 * (ssum * ssum - l2_0)
-                    deni = r1i * r2i * (si * si - l2_0)
-                    inv = tl_0 / (den * deni)     # one division for segment and image
-                    f = inv * deni
-                    fi = inv * den
-                    # g = f (d1 r2 + d2 r1) - fi (d1' r2' + d2' r1'); d1', d2' differ only in z
-                    c1 = f * r2
-                    c2 = f * r1
-                    c1i = fi * r2i
-                    c2i = fi * r1i
-                    w1 = c1 - c1i
-                    w2 = c2 - c2i
-                    gx = d1x * w1 + d2x * w2
-                    gy = d1y * w1 + d2y * w2
-                    gz = d1z * c1 + d2z * c2 - d1zi * c1i - d2zi * c2i
+                    gx, gy, gz, d2x, d2y, d2z, d2zi, r2, r2i = _link_field(
+                        x, y, z, d1x, d1y, d1z, d1zi, r1, r1i, b0x, b0y, b0z, tl_0, l2_0)
                     e0 += qr_0 * gx
                     e1 += qi_0 * gx
                     e2 += qr_0 * gy
                     e3 += qi_0 * gy
                     e4 += qr_0 * gz
                     e5 += qi_0 * gz
-                    d1x = d2x
-                    d1y = d2y
-                    d1z = d2z
-                    d1zi = d2zi
-                    r1 = r2
-                    r1i = r2i
-                    # link k + 1: vertices k + 1 -> k + 2
-                    d2x = x - b1x
-                    d2y = y - b1y
-                    d2z = z - b1z
-                    d2zi = z + b1z              # image vertex: z negated
-                    h2 = d2x * d2x + d2y * d2y
-                    r2 = math.sqrt(h2 + d2z * d2z)
-                    r2i = math.sqrt(h2 + d2zi * d2zi)
-                    ssum = r1 + r2
-                    si = r1i + r2i
-                    den = r1 * r2 * (ssum * ssum - l2_1)
-                    deni = r1i * r2i * (si * si - l2_1)
-                    inv = tl_1 / (den * deni)     # one division for segment and image
-                    f = inv * deni
-                    fi = inv * den
-                    # g = f (d1 r2 + d2 r1) - fi (d1' r2' + d2' r1'); d1', d2' differ only in z
-                    c1 = f * r2
-                    c2 = f * r1
-                    c1i = fi * r2i
-                    c2i = fi * r1i
-                    w1 = c1 - c1i
-                    w2 = c2 - c2i
-                    gx = d1x * w1 + d2x * w2
-                    gy = d1y * w1 + d2y * w2
-                    gz = d1z * c1 + d2z * c2 - d1zi * c1i - d2zi * c2i
+                    gx, gy, gz, d2x, d2y, d2z, d2zi, r2, r2i = _link_field(
+                        x, y, z, d2x, d2y, d2z, d2zi, r2, r2i, b1x, b1y, b1z, tl_1, l2_1)
                     e0 += qr_1 * gx
                     e1 += qi_1 * gx
                     e2 += qr_1 * gy
