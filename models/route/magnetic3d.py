@@ -601,6 +601,7 @@ def flux_density_segments(
     run_re = np.ascontiguousarray(run_cur.real)
     run_im = np.ascontiguousarray(run_cur.imag)
     field_kernel, inside_kernel = _get_kernels()
+    from numba import parallel_chunksize
 
     n = len(p)
     out = np.empty((n, 3), dtype=complex)
@@ -609,7 +610,7 @@ def flux_density_segments(
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(p[lo:hi, k]) for k in range(3))
-        with _KERNEL_LOCK:
+        with _KERNEL_LOCK, parallel_chunksize(1):  # tiles handed out one at a time: a busy core takes fewer
             field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
                          int(tile))
             inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
