@@ -148,8 +148,10 @@ def discretise_route(
         B error near a conductor at distance d stays below about tolerance_m / d
         (module notes).
     max_segment_m : float, optional
-        Largest horizontal segment length [m] (also splits straight spans), e.g. for
-        the charge simulation of the electric field.
+        Largest horizontal segment length of a bundle centre or earth wire [m] (also
+        splits straight spans), e.g. for the charge simulation of the electric field.
+        Subconductor segments next to an angle support can be longer by a fraction of
+        the bundle radius, as they follow the centre's vertices.
     for_electric : bool
         False (default): one wire per bundle subconductor (for B).  True: one wire
         per bundle with the equivalent radius (for E).
