@@ -162,9 +162,13 @@ def problem_response(status: int, *, title: str | None = None, detail: str | Non
 
 
 def _handle_http_exception(exc: HTTPException) -> Response:
+    from flask import current_app
+
     base = exc.get_response()
-    return problem_response(base.status_code, title=exc.name, detail=exc.description,
-                            headers=base.headers.items())
+    detail = exc.description
+    if base.status_code == 413:
+        detail = f"The request body exceeds the limit of {current_app.config['MAX_CONTENT_LENGTH']} bytes."
+    return problem_response(base.status_code, title=exc.name, detail=detail, headers=base.headers.items())
 
 
 def _handle_validation_error(exc: ValidationError) -> Response:

@@ -346,6 +346,7 @@ def test_oversize_body_is_413():
     body["padding"] = "z" * 2000
     response = app.test_client().post("/v1/assessments", json=body)
     assert response.status_code == 413 and response.mimetype == PROBLEM
+    assert "1000 bytes" in response.get_json()["detail"]
     assert stored_count(app) == 0
 
 
