@@ -552,6 +552,23 @@ def test_chunking_does_not_change_results():
         np.testing.assert_array_equal(e3.electric_field_segments(pts, seg, q, chunk_size=chunk), full)
 
 
+def test_thread_count_does_not_change_results():
+    # Each point's sum runs over the links in a fixed order whatever thread computes it.
+    import numba
+
+    seg = polyline_set([catenary_wire(200.0, 18.0, 5.0, 31, lateral_m=y) for y in (-5.0, 5.0)], [1e5, -1e5], [0.02] * 2)
+    q = e3.line_charges(seg)
+    rng = np.random.default_rng(4)
+    pts = np.column_stack([rng.uniform(0, 200, 500), rng.uniform(-30, 30, 500), rng.uniform(0, 5, 500)])
+    before = numba.get_num_threads()
+    try:
+        numba.set_num_threads(1)
+        one = e3.electric_field_segments(pts, seg, q)
+    finally:
+        numba.set_num_threads(before)
+    np.testing.assert_array_equal(e3.electric_field_segments(pts, seg, q), one)
+
+
 def test_warm_up_runs():
     assert e3.warm_up() is None
 
