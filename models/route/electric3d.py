@@ -57,6 +57,7 @@ from .types import SegmentSet
 
 __all__ = [
     "DEFAULT_CHUNK_SIZE",
+    "MAX_CHARGE_SEGMENTS",
     "electric_field_segments",
     "electric_potential_segments",
     "line_charges",
@@ -71,6 +72,10 @@ K_E = 1.0 / (4.0 * math.pi * EPS0_F_PER_M)
 
 DEFAULT_CHUNK_SIZE = 65536
 """Observation points per call of the field kernel (bounds the working memory)."""
+
+MAX_CHARGE_SEGMENTS = 6000
+"""Largest number of unscreened segments :func:`line_charges` accepts: the dense matrix and
+its LU copy take 16 m^2 bytes (576 MB at 6,000), which keeps a request under 1 GiB."""
 
 _POINT_BLOCK = 64      # points per tile in the field kernel (SIMD lanes; 11 x 64 doubles in L1)
 _SEGMENT_BLOCK = 256   # segments per block in the matching-matrix kernel
@@ -593,7 +598,8 @@ def line_charges(segments: SegmentSet) -> np.ndarray:
     EngineInputError, GeometryError
         Malformed arrays, zero-length segments, a wire radius <= 0, or an unscreened
         segment whose end is within a wire radius of the ground (field names
-        ``segments.<attribute>[index]``).
+        ``segments.<attribute>[index]``); more than :data:`MAX_CHARGE_SEGMENTS`
+        unscreened segments (field ``segments``).
 
     Notes
     -----
@@ -618,6 +624,10 @@ def line_charges(segments: SegmentSet) -> np.ndarray:
     _check_segments(segments)
     mask = _active(segments)
     m = mask.shape[0]
+    n_active = int(mask.sum())
+    if n_active > MAX_CHARGE_SEGMENTS:
+        raise must_be("segments", f"at most {MAX_CHARGE_SEGMENTS} unscreened segments for the charge simulation "
+                      "(coarser discretisation or a shorter route)", n_active)
     charges = np.zeros(m, dtype=complex)
     if not mask.any():
         return charges

@@ -621,6 +621,15 @@ def test_malformed_input(kwargs, field):
     assert err.value.field == field
 
 
+def test_too_many_segments_is_an_input_error(monkeypatch):
+    # the dense matrix needs 16 m^2 bytes: beyond the cap the request is refused, not attempted
+    monkeypatch.setattr(e3, "MAX_CHARGE_SEGMENTS", 10)
+    seg = polyline_set(straight_wires([0.0], [10.0], 220.0, 20.0), [1e5], [0.01])
+    with pytest.raises(EngineInputError) as err:
+        e3.line_charges(seg)
+    assert err.value.field == "segments"
+
+
 def test_bad_segments():
     low = polyline_set([np.array([[0.0, 0.0, 0.005], [10.0, 0.0, 5.0]])], [1e5], [0.01])
     with pytest.raises(GeometryError) as err:
