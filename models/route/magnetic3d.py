@@ -71,7 +71,12 @@ def _segment_arrays(segments, current_a=None, radius_m=None):
         start = np.asarray(segments.start_m, dtype=float)
         end = np.asarray(segments.end_m, dtype=float)
         cur = np.asarray(segments.current_a, dtype=complex)
-        rad = np.asarray(segments.wire_radius_m, dtype=float)[np.asarray(segments.wire_index)]
+        radii = np.asarray(segments.wire_radius_m, dtype=float)
+        idx = np.asarray(segments.wire_index)
+        if idx.shape != cur.shape or (idx.size and (idx.min() < 0 or idx.max() >= len(radii))):
+            raise must_be("segments.wire_index", f"one index in 0..{len(radii) - 1} per segment", idx.shape,
+                          GeometryError)
+        rad = radii[idx]
     else:
         start, end = (np.asarray(x, dtype=float) for x in segments)
         if current_a is None:

@@ -275,3 +275,13 @@ def test_concurrent_calls_from_threads_agree():
         t.join()
     for r in out:
         np.testing.assert_array_equal(r, ref)
+
+
+def test_inconsistent_segment_set_is_a_typed_error():
+    from dataclasses import replace
+
+    segs = discretise_route(_demo_route(), tolerance_m=0.1)
+    bad = replace(segs, wire_index=segs.wire_index + 100)
+    with pytest.raises(GeometryError) as info:
+        flux_density_segments(np.ones((1, 3)), bad)
+    assert info.value.field == "segments.wire_index"
