@@ -13,17 +13,23 @@ from pathlib import Path
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request, url_for
+from marshmallow import ValidationError
 from sqlalchemy.exc import SQLAlchemyError
 from werkzeug.exceptions import BadRequest, NotFound, UnsupportedMediaType
 
+from models import catalogue
+from models.errors import CatalogueError
+
 from . import storage
+from .assessment import build_report, threshold_row
 from .errors import INVALID_PARAMETER, ProblemError
+from .schemas import ListQuerySchema, ReferenceLevelQuerySchema, load_assessment_request
 
 bp = Blueprint("api", __name__)
 
 
 @bp.get("/healthz")
-def healthz() -> Response | tuple[Response, int]:
+def healthz() -> Response:
     """Liveness and database check."""
     try:
         session = storage.get_session()
@@ -56,9 +62,6 @@ def _compute_report(body: Any) -> dict[str, Any]:
 
     Another request geometry (e.g. a route) is dispatched here on the body's shape.
     """
-    from .assessment import build_report
-    from .schemas import load_assessment_request
-
     request_obj = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
                                           max_conductors=current_app.config["MAX_CONDUCTORS"])
     return build_report(request_obj)
@@ -66,8 +69,6 @@ def _compute_report(body: Any) -> dict[str, Any]:
 
 def _query(schema: Any) -> dict[str, Any]:
     """Query parameters loaded with ``schema``; errors become a 400 problem naming each parameter."""
-    from marshmallow import ValidationError
-
     try:
         return schema.load(request.args.to_dict())
     except ValidationError as exc:
@@ -124,8 +125,6 @@ def get_assessment(assessment_id: uuid.UUID) -> Response:
 @bp.get("/v1/assessments")
 def list_assessments() -> Response:
     """Stored assessments, newest first, with filters and cursor pagination."""
-    from .schemas import ListQuerySchema
-
     query = _query(ListQuerySchema())
     limit = min(query.get("limit", current_app.config["PAGE_SIZE_DEFAULT"]), current_app.config["PAGE_SIZE_MAX"])
     before = None
@@ -160,12 +159,6 @@ def evaluate() -> Response:
 @bp.get("/v1/reference-levels")
 def reference_levels() -> Response:
     """The reference-level catalogue with citations, evaluated at one frequency."""
-    from models import catalogue
-    from models.errors import CatalogueError
-
-    from .assessment import threshold_row
-    from .schemas import ReferenceLevelQuerySchema
-
     frequency_hz = _query(ReferenceLevelQuerySchema())["frequency_hz"]
     try:
         levels = catalogue.levels_at(frequency_hz)
