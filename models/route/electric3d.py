@@ -807,7 +807,7 @@ def electric_field_segments(points_m, segments: SegmentSet, charges=None, *,
     ``E = q/(4 pi eps0) * 2L/(S^2 - L^2) * (d1/r1 + d2/r2)``, ``d1 = p - A``,
     ``d2 = p - B``, ``S = r1 + r2``; this is ``-grad`` of ``k q ln((S+L)/(S-L))``.
     Each image (z negated) adds the same with ``-q``.  The kernel is compiled
-    with numba (parallel over blocks of points, segments in L1-sized blocks).
+    with numba (parallel over tiles of 64 points, SIMD over the points of a tile).
 
     References
     ----------
