@@ -172,7 +172,8 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     Returns
     -------
     dict
-        ``title``, ``reference``, ``outcome`` ("pass" when every threshold is met),
+        ``kind`` ("cross_section"), ``title``, ``reference``, ``outcome`` ("pass" when
+        every threshold is met),
         ``engine_version``, ``catalogue_version``, ``frequency_hz``,
         ``compliance_quantity``, ``input`` (the normalised request), ``maxima``,
         ``compliance``, ``assumptions``, ``cautions``, ``points``.
@@ -190,6 +191,7 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     checks = evaluate_compliance(result, limits, lateral_offset_m=lateral, quantity_kind=COMPLIANCE_QUANTITY)
     compliance = [compliance_row(c, result.points_m) for c in checks]
     return {
+        "kind": "cross_section",
         "title": request.title,
         "reference": request.reference,
         "outcome": "pass" if all(c["passes"] for c in compliance) else "fail",
