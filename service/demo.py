@@ -94,7 +94,10 @@ def _stop(signum: int, frame: object) -> None:
 
 
 def main() -> int:
-    signal.signal(signal.SIGTERM, _stop)  # stop gunicorn too when asked to stop
+    # Stop gunicorn too when asked to stop; SIGINT explicitly, because a shell that starts
+    # us in the background sets it to "ignore", which Python would keep.
+    signal.signal(signal.SIGTERM, _stop)
+    signal.signal(signal.SIGINT, _stop)
     port = choose_port()
     base = f"http://{HOST}:{port}"
     env = {**os.environ, "HOST": HOST, "PORT": str(port)}
