@@ -155,3 +155,48 @@ def test_report_responses_match_the_openapi_document(client, stored):
     check_response(spec, client.get(f"/v1/assessments/{stored['id']}/geojson"))                      # 404
     check_response(spec, client.post(f"/v1/assessments/{stored['id']}/verify"))
     check_response(spec, client.get("/v1/audit/verify-chain"))
+
+
+@pytest.fixture(scope="module")
+def stored_route(client) -> dict:
+    """The invented lon/lat demo route (grid coarsened to 10 m), stored the way POST stores a report."""
+    from service import storage
+    from service.route_assessment import build_route_report
+    from service.route_schemas import load_route_request
+
+    body = json.loads((DEMO.parent / "demo_route_lonlat.json").read_text(encoding="utf-8"))
+    body["grid"]["resolution_m"] = 10.0
+    report = build_route_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
+    app = client.application
+    session = storage.storage_of(app).sessionmaker()
+    with session.begin():
+        record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    session.close()
+    return client.get(f"/v1/assessments/{record.id}").get_json()
+
+
+def test_route_geojson_over_http(client, stored_route):
+    from shapely.geometry import shape
+
+    r = client.get(f"/v1/assessments/{stored_route['id']}/geojson")
+    assert r.status_code == 200 and r.mimetype == "application/geo+json"
+    fc = json.loads(r.get_data(as_text=True))
+    assert fc["type"] == "FeatureCollection" and "coordinate_reference" not in fc  # lon/lat request
+    kinds = {f["properties"]["kind"] for f in fc["features"]}
+    assert {"route", "support", "path", "lateral_profile", "receptor", "zone"} <= kinds
+    for f in fc["features"]:
+        assert shape(f["geometry"]).is_valid
+    assert client.get(f"/v1/assessments/{stored_route['id']}/geojson",
+                      headers={"If-None-Match": r.headers["ETag"]}).status_code == 304
+
+
+def test_route_report_pages(client, stored_route):
+    page = client.get(f"/v1/assessments/{stored_route['id']}/report", headers={"Accept": "text/html"})
+    assert page.status_code == 200
+    text = page.get_data(as_text=True)
+    assert 'id="plan"' in text and 'id="zones"' in text
+    assert f'/v1/assessments/{stored_route["id"]}/geojson' in text  # linked from the page
+    rows = list(csv.DictReader(io.StringIO(client.get(
+        f"/v1/assessments/{stored_route['id']}/report?format=csv").get_data(as_text=True))))
+    receptors = [r for r in rows if r["set"] == "receptors"]
+    assert [r["name"] for r in receptors] == [p["name"] for p in stored_route["results"]["receptors"]]
