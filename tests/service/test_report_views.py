@@ -186,6 +186,11 @@ def test_route_geojson_over_http(client, stored_route):
     assert {"route", "support", "path", "lateral_profile", "receptor", "zone"} <= kinds
     for f in fc["features"]:
         assert shape(f["geometry"]).is_valid
+    from tests.service.test_openapi import SPEC_PATH, check_response
+
+    import yaml
+
+    check_response(yaml.safe_load(SPEC_PATH.read_text(encoding="utf-8")), r)
     assert client.get(f"/v1/assessments/{stored_route['id']}/geojson",
                       headers={"If-None-Match": r.headers["ETag"]}).status_code == 304
 
