@@ -23,6 +23,8 @@ from models.errors import CatalogueError
 from . import storage
 from .assessment import build_report, threshold_row
 from .errors import INVALID_PARAMETER, ProblemError
+from .route_assessment import build_route_report
+from .route_schemas import geometry_kind, load_route_request
 from .schemas import ListQuerySchema, ReferenceLevelQuerySchema, load_assessment_request
 
 bp = Blueprint("api", __name__)
@@ -62,6 +64,11 @@ def _compute_report(body: Any) -> dict[str, Any]:
 
     Another request geometry (e.g. a route) is dispatched here on the body's shape.
     """
+    if geometry_kind(body) == "route":  # a line in map coordinates (3-D): service.route_*
+        cap = current_app.config["MAX_ROUTE_POINTS"]
+        route_request = load_route_request(body, max_route_points=cap,
+                                           max_conductors=current_app.config["MAX_CONDUCTORS"])
+        return build_route_report(route_request, max_points=cap)
     request_obj = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
                                           max_conductors=current_app.config["MAX_CONDUCTORS"])
     return build_report(request_obj)
