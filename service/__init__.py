@@ -36,11 +36,23 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     errors.init_app(app)
     storage.init_app(app)
     if app.config["WARM_UP_ENGINE"]:
-        from models.cross_section import compile_kernels
-
-        compile_kernels()
+        _warm_up_engine()
     _register_blueprints(app)
     return app
+
+
+def _warm_up_engine() -> None:
+    """Compile (or load from numba's disk cache) every engine kernel, once per process.
+
+    Runs in each gunicorn worker (no ``preload_app``), i.e. after the fork, as the
+    parallel 3-D kernels require; later apps in the same process find them compiled.
+    """
+    from models.cross_section import compile_kernels
+    from models.route import warm_up_electric, warm_up_magnetic
+
+    compile_kernels()
+    warm_up_magnetic()
+    warm_up_electric()
 
 
 def _register_blueprints(app: Flask) -> None:

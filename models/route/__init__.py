@@ -30,6 +30,7 @@ from .geometry import (
     validate_route,
 )
 from .electric3d import electric_field_segments, line_charges
+from .evaluate import RouteResult, evaluate_route
 from .electric3d import warm_up as warm_up_electric
 from .magnetic3d import flux_density_segments
 from .magnetic3d import warm_up as warm_up_magnetic
@@ -37,6 +38,8 @@ from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWi
 
 __all__ = [
     "Attachment",
+    "RouteResult",
+    "evaluate_route",
     "CatenarySpan",
     "DEFAULT_TOLERANCE_M",
     "Route",
