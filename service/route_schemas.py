@@ -45,6 +45,7 @@ from .schemas import (
     CurrentPhasorSchema,
     CustomLimit,
     FiniteFloat,
+    ProfileSchema,
     VoltagePhasorSchema,
 )
 
@@ -270,17 +271,10 @@ class PathSchema(Schema):
         return PathSet(LineString(coords), data["step_m"], data["height_m"])
 
 
-class LateralProfileSchema(Schema):
-    chainage_m = FiniteFloat(required=True, validate=NON_NEGATIVE)
-    from_m = FiniteFloat(required=True)
-    to_m = FiniteFloat(required=True)
-    step_m = FiniteFloat(required=True, validate=POSITIVE)
-    height_m = FiniteFloat(required=True, validate=NON_NEGATIVE)
+class LateralProfileSchema(ProfileSchema):
+    """A cross-section profile (same fields and checks) placed at a chainage along the route."""
 
-    @validates_schema
-    def non_empty(self, data: dict[str, Any], **kwargs: Any) -> None:
-        if not data["to_m"] > data["from_m"]:
-            raise ValidationError("Must be greater than from_m (the profile would be empty).", field_name="to_m")
+    chainage_m = FiniteFloat(required=True, validate=NON_NEGATIVE)
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> LateralProfileSet:

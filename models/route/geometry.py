@@ -47,15 +47,8 @@ from typing import Literal
 import numpy as np
 from shapely.geometry import LineString
 
-from ..errors import GeometryError, LoadingError, must_be
-from ..sources import (
-    _check_bundle,
-    _check_overlaps,
-    _check_phasor,
-    _finite,
-    bundle_radius_m,
-    circuit_phase_angles_deg,
-)
+from ..errors import GeometryError, must_be
+from ..sources import _check_overlaps, _check_phasor, _finite, validate_circuit
 from .catenary import CatenarySpan
 from .types import Attachment, Route
 
@@ -424,18 +417,8 @@ def strung_wires(route: Route, *, convention: OffsetConvention = "perpendicular"
     envelopes: list[list[tuple[float, float, float, str]]] = [[] for _ in range(n)]
     for ci, circuit in enumerate(route.circuits):
         cpath = f"route.circuits[{ci}]"
-        if circuit.kind not in ("overhead", "underground"):
-            raise must_be(f"{cpath}.kind", "'overhead' or 'underground'", circuit.kind, GeometryError)
-        for name in ("voltage_kv", "current_a"):
-            value = _finite(f"{cpath}.{name}", getattr(circuit, name), ">= 0", LoadingError)
-            if value < 0:
-                raise must_be(f"{cpath}.{name}", ">= 0", getattr(circuit, name), LoadingError)
-        _finite(f"{cpath}.angle_offset_deg", circuit.angle_offset_deg, "in degrees", LoadingError)
-        if not circuit.conductors:
-            raise must_be(f"{cpath}.conductors", "a non-empty list of conductors", [], GeometryError)
-        _check_bundle(f"{cpath}.bundle", circuit.bundle)
-        circuit_phase_angles_deg(circuit, cpath)
-        outer = bundle_radius_m(circuit.bundle) + circuit.bundle.subconductor_diameter_m / 2.0
+        # circuit-level checks are the cross-section's (same fields on RouteCircuit)
+        outer = validate_circuit(circuit, cpath)
         underground = circuit.kind == "underground"
         for k, conductor in enumerate(circuit.conductors):
             kpath = f"{cpath}.conductors[{k}]"
