@@ -225,3 +225,18 @@ def test_compare_reports_rules():
     fresh["points"].append({"b_ut": 2.0})
     _, diffs = compare_reports(stored, fresh)
     assert {d["path"] for d in diffs} == {"/points", "/outcome"}
+
+
+def test_route_assessment_posted_and_verified(client):
+    # The lon/lat demo route through the API (grid coarsened for speed): verify recomputes
+    # it through the route schema and builder and finds it unchanged.
+    body = json.loads((DEMO.parent / "demo_route_lonlat.json").read_text(encoding="utf-8"))
+    body["grid"]["resolution_m"] = 10.0
+    created = client.post("/v1/assessments", json=body)
+    assert created.status_code == 201, created.get_data(as_text=True)
+    report = created.get_json()
+    verified = client.post(f"/v1/assessments/{report['id']}/verify").get_json()
+    assert verified["verdict"] == "match", verified["recomputation"].get("moved", [])[:3]
+    assert verified["recomputation"]["values_compared"] > 1000
+    geo = client.get(f"/v1/assessments/{report['id']}/geojson")
+    assert geo.status_code == 200 and geo.mimetype == "application/geo+json"
