@@ -78,7 +78,7 @@ def submit(base: str) -> dict:
 
 def report_url(base: str, assessment_id: str) -> str:
     """The human-readable report if the service offers one, else the JSON record."""
-    html = f"{base}/v1/assessments/{assessment_id}/report"
+    html = f"{base}/v1/assessments/{assessment_id}/report?format=html"  # HTML whatever the client sends
     try:
         req = urllib.request.Request(html, headers={"Accept": "text/html"})
         with urllib.request.urlopen(req, timeout=120) as resp:
