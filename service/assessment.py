@@ -166,6 +166,68 @@ def _evaluate(request: AssessmentRequest, offsets: np.ndarray, heights: np.ndarr
         raise
 
 
+DEFAULT_EDGE_HEIGHT_M = 1.0
+"""Height [m] of the right-of-way edge values when explicit points lie at several heights (common practice: 1 m)."""
+
+
+def edge_height(request: AssessmentRequest) -> tuple[float, str]:
+    """Height [m] at which the right-of-way edges are evaluated, and its basis.
+
+    The profile's ``height_m``; for explicit points their height if they all share
+    one, else :data:`DEFAULT_EDGE_HEIGHT_M`.  Basis: "profile", "points" or "default".
+    """
+    if request.profile is not None:
+        return request.profile.height_m, "profile"
+    heights = {pt.height_m for pt in request.points or ()}
+    if len(heights) == 1:
+        return heights.pop(), "points"
+    return DEFAULT_EDGE_HEIGHT_M, "default"
+
+
+_HEIGHT_NOTES = {
+    "profile": "Edges evaluated at the height of the lateral profile.",
+    "points": "Edges evaluated at the common height of the given points.",
+    "default": "The given points lie at several heights; edges evaluated at the default 1 m above ground.",
+}
+
+
+def right_of_way_block(request: AssessmentRequest, limits: list[catalogue.Threshold]) -> dict[str, Any] | None:
+    """Resultant E [kV/m] and B [µT] computed at the two right-of-way edges, with exposure indices.
+
+    The fields are evaluated at exactly the edge offsets (not interpolated from the
+    profile), at the height given by :func:`edge_height`.  None without a right-of-way.
+
+    :raise models.errors.EngineInputError: an edge inside a conductor (field ``right_of_way.<edge>_m``).
+    """
+    row = request.right_of_way
+    if row is None:
+        return None
+    height_m, basis = edge_height(request)
+    keys = ("left_m", "right_m")
+    try:
+        result = evaluate_cross_section(request.cross_section, np.array([row.left_m, row.right_m]),
+                                        np.full(2, height_m), request.frequency_hz,
+                                        soil_resistivity_ohm_m=request.soil_resistivity_ohm_m)
+    except EngineInputError as exc:
+        if exc.field.startswith("points["):
+            k = int(exc.field[len("points["):].split("]", 1)[0])
+            raise type(exc)(f"right_of_way.{keys[k]}", f"{exc.message} (the right-of-way edge point)") from exc
+        raise
+    values = {"E": result.e_rms_v_per_m, "B": result.b_rms_t}  # resultants, as COMPLIANCE_QUANTITY
+    edges = []
+    for k, (edge, key) in enumerate(zip(("left", "right"), keys)):
+        exposure = []
+        for t in limits:
+            index = float(values[t.quantity][k] / t.limit_si)
+            exposure.append({"level_id": t.level_id, "quantity": t.quantity, "exposure_index": index,
+                             "passes": bool(index <= 1.0)})
+        edges.append({"edge": edge, "offset_m": float(getattr(row, key)), "height_m": float(height_m),
+                      "e_kv_m": float(v_per_m_to_kv_per_m(result.e_rms_v_per_m[k])),
+                      "b_ut": float(t_to_ut(result.b_rms_t[k])), "exposure": exposure})
+    return {"left_m": row.left_m, "right_m": row.right_m, "height_m": float(height_m), "height_basis": basis,
+            "note": _HEIGHT_NOTES[basis], "edges": edges}
+
+
 def build_report(request: AssessmentRequest) -> dict[str, Any]:
     """Compute the report for a validated request.
 
@@ -176,7 +238,8 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
         every threshold is met),
         ``engine_version``, ``catalogue_version``, ``frequency_hz``,
         ``compliance_quantity``, ``input`` (the normalised request), ``maxima``,
-        ``compliance``, ``assumptions``, ``cautions``, ``points``.
+        ``compliance``, ``assumptions``, ``cautions``, ``points``, and ``right_of_way``
+        (see :func:`right_of_way_block`) when the request gives one.
 
     Raises
     ------
@@ -190,7 +253,8 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     lateral = offsets if request.profile is not None else None
     checks = evaluate_compliance(result, limits, lateral_offset_m=lateral, quantity_kind=COMPLIANCE_QUANTITY)
     compliance = [compliance_row(c, result.points_m) for c in checks]
-    return {
+    edges = right_of_way_block(request, limits)
+    report = {
         "kind": "cross_section",
         "title": request.title,
         "reference": request.reference,
@@ -206,3 +270,6 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
         "cautions": list(CAUTIONS),
         "points": point_rows(result),
     }
+    if edges is not None:
+        report["right_of_way"] = edges
+    return report

@@ -201,6 +201,29 @@ class PointSchema(Schema):
         return Point(**data)
 
 
+@dataclass(frozen=True)
+class RightOfWay:
+    """Right-of-way edges: offsets across the line [m], positive to the right, ``left_m < right_m``."""
+
+    left_m: float
+    right_m: float
+
+
+class RightOfWaySchema(Schema):
+    left_m = FiniteFloat(required=True)
+    right_m = FiniteFloat(required=True)
+
+    @validates_schema
+    def ordered(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if not data["right_m"] > data["left_m"]:
+            raise ValidationError("Must be greater than left_m (the right edge lies right of the left edge).",
+                                  field_name="right_m")
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> RightOfWay:
+        return RightOfWay(**data)
+
+
 # --------------------------------------------------------------------------- limits and the request
 
 
@@ -242,6 +265,7 @@ class AssessmentRequest:
     profile: Profile | None = None
     points: tuple[Point, ...] | None = None
     soil_resistivity_ohm_m: float | None = None
+    right_of_way: RightOfWay | None = None
 
 
 class AssessmentBaseSchema(Schema):
@@ -281,6 +305,7 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
     cross_section = fields.Nested(CrossSectionSchema, required=True)
     profile = fields.Nested(ProfileSchema)
     points = fields.List(fields.Nested(PointSchema), validate=validate.Length(min=1))
+    right_of_way = fields.Nested(RightOfWaySchema)
 
     @validates_schema
     def points_and_size(self, data: dict[str, Any], **kwargs: Any) -> None:
