@@ -568,6 +568,22 @@ def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     return rows
 
 
+def _edge_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Rows of the right-of-way edge table (empty when the request gave no right-of-way)."""
+    block = (report.get("right_of_way") or {})
+    rows = []
+    for edge in block.get("edges", ()):
+        rows.append({
+            "edge": edge.get("edge", ""), "offset": f"{float(edge['offset_m']):+.1f}",
+            "height": f"{float(edge['height_m']):.1f}",
+            "e": format_number(edge.get("e_kv_m")), "b": format_number(edge.get("b_ut")),
+            "exposure": [{"label": f"{x['level_id']} {x['quantity']}",
+                          "index": format_number(x.get("exposure_index"), 3),
+                          "passes": bool(x.get("passes"))} for x in edge.get("exposure", ())],
+        })
+    return rows
+
+
 def _table_sample(rows: Sequence[Mapping[str, Any]], limit: int, keep: Iterable[int]) -> list[int]:
     n = len(rows)
     if n <= limit:
@@ -695,6 +711,8 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "failed": failed,
         "n_levels": len(compliance),
         "compliance": compliance,
+        "edge_rows": _edge_rows(report),
+        "edge_note": (report.get("right_of_way") or {}).get("note", ""),
         "figures": figures,
         "drawing": drawing,
         "drawing_caption": section_caption,

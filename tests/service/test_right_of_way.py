@@ -207,3 +207,56 @@ def test_right_of_way_schema_names_match_the_document(spec):
     assert set(doc["properties"]) == set(fields)
     assert set(doc["required"]) == {k for k, f in fields.items() if f.required}
     assert "right_of_way" in spec["components"]["schemas"]["AssessmentRequest"]["properties"]
+
+
+def test_html_report_tabulates_the_edge_values(client):
+    # The printed page must carry the edge values themselves, not only the plot lines:
+    # the numbers in the table are the JSON report's (4 significant digits, as in the page).
+    from html.parser import HTMLParser
+
+    from service.reports import format_number
+
+    created = client.post("/v1/assessments", json=with_row()).get_json()
+    page = client.get(f"/v1/assessments/{created['id']}/report?format=html").get_data(as_text=True)
+
+    class Table(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.inside, self.rows, self.cell = False, [], None
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "table" and ("id", "right-of-way-edges") in attrs:
+                self.inside = True
+            elif self.inside and tag == "tr":
+                self.rows.append([])
+            elif self.inside and tag in ("td", "th"):
+                self.cell = ""
+
+        def handle_endtag(self, tag):
+            if tag == "table":
+                self.inside = False
+            elif self.inside and tag in ("td", "th") and self.cell is not None:
+                self.rows[-1].append(self.cell.strip())
+                self.cell = None
+
+        def handle_data(self, data):
+            if self.cell is not None:
+                self.cell += data
+
+    parser = Table()
+    parser.feed(page)
+    header, *rows = parser.rows
+    assert header[:5] == ["Edge", "Offset (m)", "Height (m)", "E (kV/m)", "B (µT)"]
+    edges = created["right_of_way"]["edges"]
+    assert [r[0] for r in rows] == ["left", "right"]
+    for row, edge in zip(rows, edges):
+        assert float(row[1]) == pytest.approx(edge["offset_m"], abs=0.05)
+        assert row[3] == format_number(edge["e_kv_m"]) and row[4] == format_number(edge["b_ut"])
+        for x in edge["exposure"]:
+            assert f"{x['level_id']} {x['quantity']}: {format_number(x['exposure_index'], 3)}" in row[5]
+
+
+def test_html_report_has_no_edge_table_without_right_of_way(client):
+    created = client.post("/v1/assessments", json=small_body()).get_json()
+    page = client.get(f"/v1/assessments/{created['id']}/report?format=html").get_data(as_text=True)
+    assert 'id="right-of-way-edges"' not in page
