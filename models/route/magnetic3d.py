@@ -108,13 +108,15 @@ def _link_boxes(verts, link_rad, block):
     Returns ndarray, shape (nblocks, 6): xmin, xmax, ymin, ymax, zmin, zmax [m].
     """
     nl = len(verts) - 1
-    nblk = (nl + block - 1) // block
-    box = np.empty((max(nblk, 0), 6))
-    for b in range(nblk):
-        v = verts[b * block:min((b + 1) * block, nl) + 1]
-        r = float(link_rad[b * block:(b + 1) * block].max())
-        box[b, 0::2] = v.min(axis=0) - r
-        box[b, 1::2] = v.max(axis=0) + r
+    if nl <= 0:
+        return np.empty((0, 6))
+    first = np.arange(0, nl, block)
+    lo = np.minimum.reduceat(np.minimum(verts[:-1], verts[1:]), first, axis=0)
+    hi = np.maximum.reduceat(np.maximum(verts[:-1], verts[1:]), first, axis=0)
+    r = np.maximum.reduceat(link_rad, first)[:, None]
+    box = np.empty((len(first), 6))
+    box[:, 0::2] = lo - r
+    box[:, 1::2] = hi + r
     return box
 
 
@@ -469,44 +471,60 @@ def _build_kernels():
                 out[lo + i, 2, 1] = scale * s5[i]
 
     @nb.njit(parallel=True, cache=True, nogil=True, boundscheck=False)
-    def inside_kernel(px, py, pz, vx, vy, vz, r2, box, block, hit):  # pragma: no cover - compiled
+    def inside_kernel(px, py, pz, vx, vy, vz, r2, box, block, tile, hit):  # pragma: no cover - compiled
         # hit[i] = first link whose wire contains point i (distance to the segment
-        # below the radius), else -1.  Blocks of links are skipped when the point is
-        # outside their bounding box grown by the largest radius.
+        # below the radius), else -1.  Points go in tiles (parallel over tiles); a block
+        # of links is skipped for the whole tile when the tile's bounding box misses the
+        # block's box (grown by its largest radius), and for a point outside that box.
+        # Blocks are visited in order for every point, so the first hit is the same
+        # whatever the tiling.
         n = px.shape[0]
         nl = vx.shape[0] - 1
         nblk = box.shape[0]
-        for i in nb.prange(n):
-            x = px[i]
-            y = py[i]
-            z = pz[i]
-            found = -1
+        ntile = (n + tile - 1) // tile
+        for t in nb.prange(ntile):
+            lo = t * tile
+            hi = min(lo + tile, n)
+            x0 = px[lo:hi].min()
+            x1 = px[lo:hi].max()
+            y0 = py[lo:hi].min()
+            y1 = py[lo:hi].max()
+            z0 = pz[lo:hi].min()
+            z1 = pz[lo:hi].max()
+            for i in range(lo, hi):
+                hit[i] = -1
             for b in range(nblk):
-                if (x < box[b, 0] or x > box[b, 1] or y < box[b, 2] or y > box[b, 3]
-                        or z < box[b, 4] or z > box[b, 5]):
+                if (x1 < box[b, 0] or x0 > box[b, 1] or y1 < box[b, 2] or y0 > box[b, 3]
+                        or z1 < box[b, 4] or z0 > box[b, 5]):
                     continue
-                for k in range(b * block, min((b + 1) * block, nl)):
-                    rr = r2[k]
-                    if rr <= 0.0:
+                for i in range(lo, hi):
+                    if hit[i] >= 0:
                         continue
-                    ux = vx[k + 1] - vx[k]
-                    uy = vy[k + 1] - vy[k]
-                    uz = vz[k + 1] - vz[k]
-                    wx = x - vx[k]
-                    wy = y - vy[k]
-                    wz = z - vz[k]
-                    uu = ux * ux + uy * uy + uz * uz
-                    t = (wx * ux + wy * uy + wz * uz) / uu if uu > 0.0 else 0.0
-                    t = min(max(t, 0.0), 1.0)
-                    dx = wx - t * ux
-                    dy = wy - t * uy
-                    dz = wz - t * uz
-                    if dx * dx + dy * dy + dz * dz < rr:
-                        found = k
-                        break
-                if found >= 0:
-                    break
-            hit[i] = found
+                    x = px[i]
+                    y = py[i]
+                    z = pz[i]
+                    if (x < box[b, 0] or x > box[b, 1] or y < box[b, 2] or y > box[b, 3]
+                            or z < box[b, 4] or z > box[b, 5]):
+                        continue
+                    for k in range(b * block, min((b + 1) * block, nl)):
+                        rr = r2[k]
+                        if rr <= 0.0:
+                            continue
+                        ux = vx[k + 1] - vx[k]
+                        uy = vy[k + 1] - vy[k]
+                        uz = vz[k + 1] - vz[k]
+                        wx = x - vx[k]
+                        wy = y - vy[k]
+                        wz = z - vz[k]
+                        uu = ux * ux + uy * uy + uz * uz
+                        s = (wx * ux + wy * uy + wz * uz) / uu if uu > 0.0 else 0.0
+                        s = min(max(s, 0.0), 1.0)
+                        dx = wx - s * ux
+                        dy = wy - s * uy
+                        dz = wz - s * uz
+                        if dx * dx + dy * dy + dz * dz < rr:
+                            hit[i] = k
+                            break
 
     return field_kernel, inside_kernel
 
@@ -618,7 +636,7 @@ def flux_density_segments(
         with _KERNEL_LOCK, parallel_chunksize(1):  # tiles handed out one at a time: a busy core takes fewer
             field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
                          int(tile))
-            inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, hit[lo:hi])
+            inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, int(tile), hit[lo:hi])
     hits = hit >= 0
     if on_conductor == "mask":
         out[hits] = 0.0
