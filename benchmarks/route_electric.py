@@ -9,9 +9,11 @@ segments per span and wire: 2,400 segments.  Grid: 500 x 200 = 100,000 points at
 Measured, in this process:
 
 * the charge simulation: building the 2,400 x 2,400 matching matrix
-  (:func:`models.route.electric3d.matching_matrix`) and the solve (one LU of the real
-  matrix with Re/Im of V as two right-hand sides, ``numpy.linalg.solve``), and
-  :func:`line_charges` end to end;
+  (:func:`models.route.electric3d.matching_matrix`) and the solve of the real
+  matrix with Re/Im of V as two right-hand sides, both as the engine does it (float32
+  LU refined to double precision, :func:`models.route.refined_solve.solve_refined`)
+  and as the double-precision LU ``numpy.linalg.solve`` (the baseline; the two
+  solutions' difference is printed), and :func:`line_charges` end to end;
 * E on the grid (:func:`electric_field_segments`, charges given) and B on the same
   grid for the same segments (:func:`models.route.magnetic3d.flux_density_segments`),
   interleaved round by round; ratio E/B (best vs best and median of the rounds),
@@ -52,6 +54,7 @@ from models.route import electric3d as e3  # noqa: E402
 from models.route.discretise import discretise_route  # noqa: E402
 from models.route.magnetic3d import flux_density_segments  # noqa: E402
 from models.route.magnetic3d import warm_up as warm_up_b  # noqa: E402
+from models.route.refined_solve import solve_refined  # noqa: E402
 from models.route.types import Route, RouteCircuit, RouteConductor, Support  # noqa: E402
 
 SPAN_M = 300.0
@@ -95,7 +98,8 @@ def solve_only(repeat: int) -> None:
     v = seg.wire_voltage_v[seg.wire_index]
     rhs = np.column_stack([v.real, v.imag])
     t_solve = best_of(lambda: np.linalg.solve(p, rhs), repeat)
-    print(f"{t_solve:.6f}")
+    t_refined = best_of(lambda: solve_refined(p, rhs), repeat)
+    print(f"{t_solve:.6f} {t_refined:.6f}")
 
 
 def main() -> None:
@@ -132,13 +136,20 @@ def main() -> None:
     numba.set_num_threads(2)
     p = e3.matching_matrix(seg)
     t_solve = best_of(lambda: np.linalg.solve(p, rhs), args.repeat)
+    t_refined = best_of(lambda: solve_refined(p, rhs), args.repeat)
+    x_lu = np.linalg.solve(p, rhs)
+    x_ref, steps = solve_refined(p, rhs)
     t_charges = best_of(lambda: e3.line_charges(seg), args.repeat)
     env1 = dict(os.environ, OPENBLAS_NUM_THREADS="1")
     out1 = subprocess.run([sys.executable, __file__, "--solve-only", "--repeat", str(args.repeat)],
                           capture_output=True, text=True, env=env1, check=True).stdout
-    t_solve1 = float(out1.strip().splitlines()[-1])
-    print(f"LU solve, 2 right-hand sides: {t_solve * 1e3:7.1f} ms (OpenBLAS default threads), "
+    t_solve1, t_refined1 = (float(x) for x in out1.strip().splitlines()[-1].split())
+    print(f"float64 LU solve (numpy), 2 right-hand sides: {t_solve * 1e3:7.1f} ms (OpenBLAS default threads), "
           f"{t_solve1 * 1e3:7.1f} ms (OPENBLAS_NUM_THREADS=1)")
+    print(f"float32 LU + refinement (engine):             {t_refined * 1e3:7.1f} ms (OpenBLAS default threads), "
+          f"{t_refined1 * 1e3:7.1f} ms (OPENBLAS_NUM_THREADS=1); {steps} refinement steps, "
+          f"max |dq| / max |q| vs the float64 LU {np.abs(x_ref - x_lu).max() / np.abs(x_lu).max():.1e}; "
+          f"speed-up {t_solve / t_refined:.2f}x")
     print(f"line_charges end to end (checks + matrix + solve): {t_charges * 1e3:7.1f} ms (best of {args.repeat})")
     q = e3.line_charges(seg)
 

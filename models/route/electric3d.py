@@ -6,7 +6,8 @@ ground plane z = 0 carries ``-q_j``.  On the conductor surface around each
 segment's midpoint, the mean potential of four matching points must equal the
 wire's voltage (0 V for earth wires).  That gives the real square system ``P q = V`` of
 potential coefficients of finite segments, solved once (one LU, with the real
-and imaginary parts of ``V`` as two right-hand sides).  The field at any point
+and imaginary parts of ``V`` as two right-hand sides; float32 LU refined to
+double precision, :mod:`models.route.refined_solve`).  The field at any point
 is then the closed-form field of the finite charged segments and their images.
 
 Screened underground cables carry no charge in this model (their field stays
@@ -53,6 +54,7 @@ import numpy as np
 
 from ..errors import GeometryError, must_be
 from ..units import EPS0_F_PER_M
+from .refined_solve import solve_refined
 from .types import SegmentSet
 
 __all__ = [
@@ -607,7 +609,9 @@ def line_charges(segments: SegmentSet) -> np.ndarray:
     (:func:`matching_points`) must equal the wire's voltage: ``sum_j P_ij q_j = V_i``
     with ``P`` from :func:`matching_matrix`.
     ``P`` is real, so the real and imaginary parts of ``V`` are solved together as
-    two right-hand sides of one LU factorisation (``numpy.linalg.solve``).
+    two right-hand sides of one LU factorisation: single precision with
+    double-precision iterative refinement, falling back to the double LU
+    (:func:`models.route.refined_solve.solve_refined`).
     Method: charge simulation with images in a perfectly conducting ground [1]_, [2]_,
     with the finite-segment potential of [3]_ (module notes).
 
@@ -635,7 +639,7 @@ def line_charges(segments: SegmentSet) -> np.ndarray:
     pmat = matching_matrix(act)
     v = np.asarray(segments.wire_voltage_v, dtype=complex)[np.asarray(act.wire_index)]
     rhs = np.column_stack([v.real, v.imag])
-    sol = np.linalg.solve(pmat, rhs)
+    sol, _ = solve_refined(pmat, rhs)
     charges[mask] = sol[:, 0] + 1j * sol[:, 1]
     return charges
 
