@@ -25,8 +25,9 @@ Measured, in this process:
 
 Wall-clock times (time.perf_counter), best of several runs: the machine is shared, so
 the best run is the one least disturbed.  After a BLAS call OpenBLAS worker threads
-spin for ~0.1-0.2 s and slow a numba kernel started then; the script pauses 0.5 s
-after every solve before timing a kernel.  The single-thread BLAS figure comes from a
+spin for ~0.1-0.2 s and slow a numba kernel started then; the script sets
+OPENBLAS_THREAD_TIMEOUT=4 before numpy is imported (as deploy/gunicorn.conf.py does
+for the service) and pauses 0.5 s after every solve before timing a kernel.  The single-thread BLAS figure comes from a
 child process started with OPENBLAS_NUM_THREADS=1.
 
 Run from the repository root:  .venv/bin/python benchmarks/route_electric.py
@@ -34,14 +35,17 @@ Run from the repository root:  .venv/bin/python benchmarks/route_electric.py
 
 from __future__ import annotations
 
-import argparse
 import os
-import pathlib
-import resource
-import statistics
-import subprocess
-import sys
-import time
+
+os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "4")  # 2^4 cycles of spin after a BLAS call (see docstring)
+
+import argparse  # noqa: E402
+import pathlib  # noqa: E402
+import resource  # noqa: E402
+import statistics  # noqa: E402
+import subprocess  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
 
 ROOT = pathlib.Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))

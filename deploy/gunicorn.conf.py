@@ -8,6 +8,12 @@ so each builds its own database engine and no pooled connection crosses a fork.
 
 import os
 
+# Read by OpenBLAS when a worker first imports numpy (workers inherit the master's
+# environment): BLAS threads stop spinning after 2^4 cycles instead of ~0.1-0.2 s, so a
+# numba field kernel started right after the charge-simulation solve gets both cores
+# (benchmarks/README.md).  An operator's own setting wins.
+os.environ.setdefault("OPENBLAS_THREAD_TIMEOUT", "4")
+
 wsgi_app = "service:create_app()"
 bind = f"{os.environ.get('HOST', '0.0.0.0')}:{os.environ.get('PORT', '8000')}"
 workers = int(os.environ.get("WEB_CONCURRENCY", "2"))
