@@ -42,6 +42,7 @@ from typing import Any, Literal, Sequence
 from .errors import CatalogueError, must_be
 
 __all__ = [
+    "APPLIES_AT",
     "CATALOGUE_VERSION",
     "CatalogueFileError",
     "Checkpoint",
@@ -93,6 +94,8 @@ SI_UNIT = {"E": "V/m", "B": "T"}
 FORMULAS = {"constant": 0, "inverse": 1, "inverse_square": 2}
 STATUSES = ("seen", "memory", "derived")
 POPULATIONS = ("general public", "occupational", "general public and occupational")
+APPLIES_AT = ("any_point", "right_of_way_edge")
+"""Where a row's value is compared: every evaluated point, or the right-of-way edges only."""
 CHECKPOINT_REL_TOL = 0.005
 _ID_RE = re.compile(r"^[a-z0-9][a-z0-9.\-]*$")
 _VERSION_RE = re.compile(r"^\d{4}\.\d{1,2}\.\d+$")
@@ -198,6 +201,10 @@ class LevelDefinition:
         Where and how the value applies (e.g. "places of stay >= 4 h/day").
     notes : tuple of str
     quantities : tuple of QuantityDefinition
+    applies_at : str
+        Where the value is compared with the field (:data:`APPLIES_AT`):
+        ``"any_point"`` (default: the maximum over every evaluated point) or
+        ``"right_of_way_edge"`` (the values at the edges of the right-of-way only).
     """
 
     id: str
@@ -211,6 +218,7 @@ class LevelDefinition:
     scope: str
     notes: tuple[str, ...]
     quantities: tuple[QuantityDefinition, ...]
+    applies_at: str = "any_point"
 
     @property
     def citation(self) -> str:
@@ -257,6 +265,8 @@ class Threshold:
         Provenance of the value: ``"seen"``, ``"memory"``, ``"derived"`` or ``"custom"``.
     note : str
         Scope and provenance detail (source of the piece, conversions).
+    applies_at : str
+        ``"any_point"`` or ``"right_of_way_edge"`` (see :class:`LevelDefinition`).
     """
 
     level_id: str
@@ -268,6 +278,7 @@ class Threshold:
     population: str
     status: str
     note: str = ""
+    applies_at: str = "any_point"
 
 
 # --------------------------------------------------------------------------- loading
@@ -374,8 +385,12 @@ def _parse_quantity(name: str, raw: Any, path: str) -> QuantityDefinition:
 def _parse_level(raw: Any, path: str) -> LevelDefinition:
     if not isinstance(raw, dict):
         raise CatalogueFileError(path, "must be an object")
-    keys = {"id", "title", "body", "document", "year", "clause", "population", "kind", "scope", "notes", "quantities"}
+    keys = {"id", "title", "body", "document", "year", "clause", "population", "kind", "scope", "notes", "quantities",
+            "applies_at"}
     _no_extra(raw, keys, path)
+    applies_at = raw.get("applies_at", "any_point")
+    if applies_at not in APPLIES_AT:
+        raise CatalogueFileError(f"{path}.applies_at", f"must be one of {APPLIES_AT}, got {applies_at!r}")
     level_id = _text(raw, "id", path)
     if not _ID_RE.match(level_id):
         raise CatalogueFileError(f"{path}.id", f"must match {_ID_RE.pattern}, got {level_id!r}")
@@ -406,6 +421,7 @@ def _parse_level(raw: Any, path: str) -> LevelDefinition:
         scope=_text(raw, "scope", path),
         notes=tuple(notes),
         quantities=quantities,
+        applies_at=applies_at,
     )
 
 
@@ -586,6 +602,7 @@ def _threshold(level: LevelDefinition, qd: QuantityDefinition, f: float) -> Thre
         population=level.population,
         status=status,
         note=note,
+        applies_at=level.applies_at,
     )
 
 

@@ -9,6 +9,8 @@ semi-major axes of the polarisation ellipses.
 
 from __future__ import annotations
 
+import dataclasses
+
 from typing import Any
 
 import numpy as np
@@ -132,6 +134,7 @@ def threshold_row(t: catalogue.Threshold) -> dict[str, Any]:
         "population": t.population,
         "status": t.status,
         "note": t.note,
+        "applies_at": t.applies_at,
         "quantity": t.quantity,
         "frequency_hz": t.frequency_hz,
         "unit": unit,
@@ -139,11 +142,36 @@ def threshold_row(t: catalogue.Threshold) -> dict[str, Any]:
     }
 
 
-def compliance_row(c: ThresholdCompliance, points_m: np.ndarray) -> dict[str, Any]:
-    """One compliance entry: the threshold plus maximum, margin, exposure index and distances."""
+BASIS_NOTES = {
+    "all_points": "Compared with the maximum over every evaluated point.",
+    "right_of_way_edges": "This level applies at the edge of the right-of-way: compared with the larger of the "
+                          "two values computed at the right-of-way edges.",
+    "all_points_conservative": "This level applies at the edge of the right-of-way, but no right-of-way edge was "
+                               "evaluated: compared with the maximum over every evaluated point, which can only "
+                               "overstate the edge value. For a cross-section, give right_of_way to compare at "
+                               "the edges; for a route, read the receptors or a path placed on the edge.",
+}
+"""What each compliance ``basis`` means (``basis_note`` of a compliance row)."""
+
+
+def basis_for(t: catalogue.Threshold, edges_evaluated: bool) -> str:
+    """The compliance basis of a threshold: where its maximum is taken (:data:`BASIS_NOTES`)."""
+    if t.applies_at != "right_of_way_edge":
+        return "all_points"
+    return "right_of_way_edges" if edges_evaluated else "all_points_conservative"
+
+
+def compliance_row(c: ThresholdCompliance, points_m: np.ndarray, basis: str = "all_points") -> dict[str, Any]:
+    """One compliance entry: the threshold plus maximum, margin, exposure index and distances.
+
+    ``points_m`` holds the (offset, height) of the points ``c.max_index`` refers to;
+    ``basis`` says which points those are (:data:`BASIS_NOTES`).
+    """
     _, conv, suffix = _presentation(c.threshold.quantity)
     return {
         **threshold_row(c.threshold),
+        "basis": basis,
+        "basis_note": BASIS_NOTES[basis],
         f"max_{suffix}": float(conv(c.max_value_si)),
         f"margin_{suffix}": float(conv(c.margin_si)),
         "max_offset_m": float(points_m[c.max_index, 0]),
@@ -191,11 +219,34 @@ _HEIGHT_NOTES = {
 }
 
 
-def right_of_way_block(request: AssessmentRequest, limits: list[catalogue.Threshold]) -> dict[str, Any] | None:
+def edge_fields(request: AssessmentRequest) -> FieldResult | None:
+    """Fields at the two right-of-way edges (left, right) at :func:`edge_height`; None without one.
+
+    The fields are evaluated at exactly the edge offsets (not interpolated from the profile).
+
+    :raise models.errors.EngineInputError: an edge inside a conductor (field ``right_of_way.<edge>_m``).
+    """
+    row = request.right_of_way
+    if row is None:
+        return None
+    height_m, _ = edge_height(request)
+    keys = ("left_m", "right_m")
+    try:
+        return evaluate_cross_section(request.cross_section, np.array([row.left_m, row.right_m]),
+                                      np.full(2, height_m), request.frequency_hz,
+                                      soil_resistivity_ohm_m=request.soil_resistivity_ohm_m)
+    except EngineInputError as exc:
+        if exc.field.startswith("points["):
+            k = int(exc.field[len("points["):].split("]", 1)[0])
+            raise type(exc)(f"right_of_way.{keys[k]}", f"{exc.message} (the right-of-way edge point)") from exc
+        raise
+
+
+def right_of_way_block(request: AssessmentRequest, limits: list[catalogue.Threshold],
+                       result: FieldResult | None = None) -> dict[str, Any] | None:
     """Resultant E [kV/m] and B [µT] computed at the two right-of-way edges, with exposure indices.
 
-    The fields are evaluated at exactly the edge offsets (not interpolated from the
-    profile), at the height given by :func:`edge_height`.  None without a right-of-way.
+    ``result`` is :func:`edge_fields` (computed here when omitted).  None without a right-of-way.
 
     :raise models.errors.EngineInputError: an edge inside a conductor (field ``right_of_way.<edge>_m``).
     """
@@ -203,16 +254,9 @@ def right_of_way_block(request: AssessmentRequest, limits: list[catalogue.Thresh
     if row is None:
         return None
     height_m, basis = edge_height(request)
+    if result is None:
+        result = edge_fields(request)
     keys = ("left_m", "right_m")
-    try:
-        result = evaluate_cross_section(request.cross_section, np.array([row.left_m, row.right_m]),
-                                        np.full(2, height_m), request.frequency_hz,
-                                        soil_resistivity_ohm_m=request.soil_resistivity_ohm_m)
-    except EngineInputError as exc:
-        if exc.field.startswith("points["):
-            k = int(exc.field[len("points["):].split("]", 1)[0])
-            raise type(exc)(f"right_of_way.{keys[k]}", f"{exc.message} (the right-of-way edge point)") from exc
-        raise
     values = {"E": result.e_rms_v_per_m, "B": result.b_rms_t}  # resultants, as COMPLIANCE_QUANTITY
     edges = []
     for k, (edge, key) in enumerate(zip(("left", "right"), keys)):
@@ -226,6 +270,26 @@ def right_of_way_block(request: AssessmentRequest, limits: list[catalogue.Thresh
                       "b_ut": float(t_to_ut(result.b_rms_t[k])), "exposure": exposure})
     return {"left_m": row.left_m, "right_m": row.right_m, "height_m": float(height_m), "height_basis": basis,
             "note": _HEIGHT_NOTES[basis], "edges": edges}
+
+
+def _compliance_rows(checks: list[ThresholdCompliance], result: FieldResult,
+                     edge_result: FieldResult | None) -> list[dict[str, Any]]:
+    """Compliance rows; a level that applies at the right-of-way edge is judged on the edge values.
+
+    Its compliance distances still come from the whole profile (where the field falls
+    below the limit), only the maximum, margin, exposure index and verdict change.
+    """
+    rows = []
+    for c in checks:
+        basis = basis_for(c.threshold, edge_result is not None)
+        if basis != "right_of_way_edges":
+            rows.append(compliance_row(c, result.points_m, basis))
+            continue
+        at_edges = evaluate_compliance(edge_result, [c.threshold], quantity_kind=COMPLIANCE_QUANTITY)[0]
+        merged = dataclasses.replace(at_edges, distance_left_m=c.distance_left_m,
+                                     distance_right_m=c.distance_right_m, distance_note=c.distance_note)
+        rows.append(compliance_row(merged, edge_result.points_m, basis))
+    return rows
 
 
 def build_report(request: AssessmentRequest) -> dict[str, Any]:
@@ -252,8 +316,9 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     result = _evaluate(request, offsets, heights)
     lateral = offsets if request.profile is not None else None
     checks = evaluate_compliance(result, limits, lateral_offset_m=lateral, quantity_kind=COMPLIANCE_QUANTITY)
-    compliance = [compliance_row(c, result.points_m) for c in checks]
-    edges = right_of_way_block(request, limits)
+    edge_result = edge_fields(request)
+    compliance = _compliance_rows(checks, result, edge_result)
+    edges = right_of_way_block(request, limits, edge_result)
     report = {
         "kind": "cross_section",
         "title": request.title,

@@ -548,6 +548,13 @@ def _m(value: Any) -> str:
     return "–" if value is None else f"{float(value):.3f}".rstrip("0").rstrip(".")
 
 
+_BASIS_TEXT = {
+    "right_of_way_edges": "value at the right-of-way edge (the level applies there)",
+    "all_points_conservative": "largest value anywhere: the level applies at the right-of-way edge, "
+                               "which was not evaluated (conservative)",
+}
+
+
 def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     rows = []
     for c in report.get("compliance", ()):
@@ -564,6 +571,7 @@ def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
                       if c.get("max_offset_m") is not None else location_text(c.get("max_location"))),
             "left": _distance_text(c.get("distance_left_m")), "right": _distance_text(c.get("distance_right_m")),
             "note": _useful_note(c.get("distance_note", "")), "passes": bool(c.get("passes")),
+            "basis_text": _BASIS_TEXT.get(c.get("basis", ""), ""),
         })
     return rows
 

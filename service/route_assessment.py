@@ -23,7 +23,7 @@ from models.results import FieldResult
 from models.route.evaluate import RouteResult, evaluate_route
 from models.units import t_to_ut, v_per_m_to_kv_per_m
 
-from .assessment import CAUTIONS, COMPLIANCE_QUANTITY, _phase_deg, compliance_row, threshold_row, thresholds
+from .assessment import CAUTIONS, COMPLIANCE_QUANTITY, _phase_deg, basis_for, compliance_row, threshold_row, thresholds
 from .route_schemas import RouteAssessmentRequest, route_request_to_plain
 
 AXES = ("x", "y", "z")
@@ -136,7 +136,7 @@ def _compliance(res: RouteResult, limits: list[catalogue.Threshold]) -> list[dic
     rows = []
     for k, c in enumerate(checks):
         # compliance_row reads (offset, height) columns: give it (x, z) and replace the location below
-        row = compliance_row(c, res.combined.points_m[:, [0, 2]])
+        row = compliance_row(c, res.combined.points_m[:, [0, 2]], basis_for(c.threshold, False))
         row.pop("max_offset_m", None)
         row.pop("max_height_m", None)
         row["max_location"] = _where(res, c.max_index)
