@@ -156,28 +156,38 @@ def check_record(record: AssessmentRecord) -> dict[str, Any]:
     }
 
 
-def verify_chain(records: Iterable[AssessmentRecord], head: tuple[int, str]) -> dict[str, Any]:
+def verify_chain(records: Iterable[AssessmentRecord], head: tuple[int, str], *, from_sequence: int = 1,
+                 anchor_digest: str | None = GENESIS_DIGEST, check_head: bool = True) -> dict[str, Any]:
     """Walk ``records`` (ascending ``sequence``) and check every digest and link.
 
     Parameters
     ----------
     records : iterable of AssessmentRecord
-        All records in chain order.
+        The records of the checked stretch of the chain, in chain order: all of them,
+        or those from ``from_sequence`` on (a page).
     head : (int, str)
         ``(sequence, digest)`` of the chain head row (:func:`service.storage.chain_head`).
+    from_sequence : int
+        Sequence the stretch starts at (1 = the whole chain).
+    anchor_digest : str or None
+        Stored digest of the record at ``from_sequence - 1`` (the genesis digest for
+        ``from_sequence = 1``); None when that record is missing, which is a break.
+    check_head : bool
+        Compare the head row with the last record (only when the stretch reaches the head).
 
     Returns
     -------
     dict
         ``ok``, ``records_checked``, ``breaks_found``, ``first_break`` (``None`` or
         ``{"sequence", "id", "reasons"}``), ``breaks`` (at most :data:`MAX_LISTED`),
-        ``head``.  The link of each record is checked against the *stored* digest of its
-        predecessor, so an altered row breaks at that row, a row deleted from the middle
-        breaks at its successor, and rows deleted from the end break at the head.
+        ``head``, ``last_sequence`` (of the last record checked, ``from_sequence - 1``
+        when none).  The link of each record is checked against the *stored* digest of
+        its predecessor, so an altered row breaks at that row, a row deleted from the
+        middle breaks at its successor, and rows deleted from the end break at the head.
     """
-    prev_digest, expected_seq = GENESIS_DIGEST, 1
+    prev_digest, expected_seq = anchor_digest, from_sequence
     checked, breaks = 0, []
-    last_seq, last_digest = 0, GENESIS_DIGEST
+    last_seq, last_digest = from_sequence - 1, anchor_digest
     for rec in records:
         checked += 1
         reasons = []
@@ -187,7 +197,10 @@ def verify_chain(records: Iterable[AssessmentRecord], head: tuple[int, str]) -> 
             reasons.append(f"sequence gap: expected {expected_seq}, found {rec.sequence} ({missing} missing: "
                            "records deleted)" if rec.sequence > expected_seq else
                            f"sequence out of order: expected {expected_seq}, found {rec.sequence}")
-        if rec.prev_digest != prev_digest:
+        if prev_digest is None and rec.sequence == from_sequence:
+            reasons.append(f"no record at sequence {from_sequence - 1}, the predecessor of this page's first "
+                           "record (record deleted)")
+        elif prev_digest is not None and rec.prev_digest != prev_digest:
             reasons.append("prev_digest does not equal the digest of the preceding record "
                            f"(expected {prev_digest[:16]}..., found {rec.prev_digest[:16]}...)")
         reasons.extend(record_problems(rec))
@@ -196,10 +209,11 @@ def verify_chain(records: Iterable[AssessmentRecord], head: tuple[int, str]) -> 
         prev_digest, expected_seq = rec.digest, rec.sequence + 1
         last_seq, last_digest = rec.sequence, rec.digest
     head_seq, head_digest = head
-    if (head_seq, head_digest) != (last_seq, last_digest):
+    if check_head and (head_seq, head_digest) != (last_seq, last_digest):
+        shown = "none" if last_digest is None else f"{last_digest[:16]}..."
         breaks.append({"sequence": head_seq, "id": None, "reasons": [
             f"chain head is at sequence {head_seq} (digest {head_digest[:16]}...) but the last record is at "
-            f"sequence {last_seq} (digest {last_digest[:16]}...): records deleted at the end, or the head "
+            f"sequence {last_seq} (digest {shown}): records deleted at the end, or the head "
             "row altered"]})
     return {
         "ok": not breaks,
@@ -208,4 +222,5 @@ def verify_chain(records: Iterable[AssessmentRecord], head: tuple[int, str]) -> 
         "first_break": breaks[0] if breaks else None,
         "breaks": breaks[:MAX_LISTED],
         "head": {"sequence": head_seq, "digest": head_digest},
+        "last_sequence": last_seq,
     }

@@ -23,6 +23,8 @@ from datetime import datetime, timezone
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request, url_for
+from marshmallow import Schema, fields, validate
+from sqlalchemy import select
 from werkzeug.exceptions import NotAcceptable, NotFound
 
 from . import audit, reports, storage
@@ -200,14 +202,61 @@ def verify_assessment(assessment_id: uuid.UUID) -> Response:
     })
 
 
+MAX_CHAIN_PAGE = 100_000
+"""Largest ``limit`` of one ``GET /v1/audit/verify-chain`` page (records)."""
+
+
+class ChainQuerySchema(Schema):
+    """Query of ``GET /v1/audit/verify-chain``: a page of the chain by sequence numbers."""
+
+    from_sequence = fields.Integer(load_default=1, strict=False,
+                                   validate=validate.Range(min=1, error="Must be at least 1."))
+    limit = fields.Integer(load_default=None, validate=validate.Range(
+        min=1, max=MAX_CHAIN_PAGE, error=f"Must be between 1 and {MAX_CHAIN_PAGE}."))
+
+
+def _chain_range(session: Any, first: int, last: int, batch_size: int = 500):
+    """Records with ``first <= sequence <= last`` in chain order, fetched in batches."""
+    seq = first - 1
+    while True:
+        rows = list(session.scalars(
+            select(storage.AssessmentRecord)
+            .where(storage.AssessmentRecord.sequence > seq, storage.AssessmentRecord.sequence <= last)
+            .order_by(storage.AssessmentRecord.sequence).limit(batch_size)))
+        if not rows:
+            return
+        yield from rows
+        seq = rows[-1].sequence
+
+
 @bp.get("/v1/audit/verify-chain")
 def verify_chain() -> Response:
-    """Check every stored record's digest and its link to the previous one."""
+    """Check the stored records' digests and links: the whole chain, or one page of it.
+
+    ``from_sequence`` (default 1) and ``limit`` (default: up to the head) select the
+    records ``from_sequence .. from_sequence + limit - 1``; the first one's link is
+    checked against the stored digest of its predecessor, and the head row only when
+    the page reaches it.  ``next_from_sequence`` gives the next page (null at the end).
+    """
+    from .api import _query
+
+    query = _query(ChainQuerySchema())
+    first, limit = query["from_sequence"], query["limit"]
     session = storage.get_session()
     with session.begin():
         head = storage.chain_head(session)
         # Records appended after the head was read (concurrent inserts) are not part of this check.
-        records = (r for r in storage.iter_chain(session) if r.sequence <= head[0])
-        result = audit.verify_chain(records, head)
+        if first > max(head[0], 1):
+            raise ProblemError(400, f"from_sequence is beyond the chain head (sequence {head[0]}).",
+                               type_=INVALID_PARAMETER, title="Invalid query parameter",
+                               errors=[{"parameter": "from_sequence",
+                                        "detail": f"Must be at most {max(head[0], 1)}, the chain head's sequence."}])
+        last = head[0] if limit is None else min(head[0], first + limit - 1)
+        anchor = storage.GENESIS_DIGEST if first == 1 else session.scalar(
+            select(storage.AssessmentRecord.digest).where(storage.AssessmentRecord.sequence == first - 1))
+        result = audit.verify_chain(_chain_range(session, first, last), head, from_sequence=first,
+                                    anchor_digest=anchor, check_head=last >= head[0])
+    result.update({"from_sequence": first, "to_sequence": max(last, first - 1),
+                   "complete": last >= head[0], "next_from_sequence": last + 1 if last < head[0] else None})
     result["checked_at"] = storage.rfc3339(datetime.now(timezone.utc))
     return jsonify(result)

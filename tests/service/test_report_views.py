@@ -155,6 +155,8 @@ def test_report_responses_match_the_openapi_document(client, stored):
     check_response(spec, client.get(f"/v1/assessments/{stored['id']}/geojson"))                      # 404
     check_response(spec, client.post(f"/v1/assessments/{stored['id']}/verify"))
     check_response(spec, client.get("/v1/audit/verify-chain"))
+    check_response(spec, client.get("/v1/audit/verify-chain?from_sequence=1&limit=1"))
+    check_response(spec, client.get("/v1/audit/verify-chain?limit=0"))                              # 400
 
 
 @pytest.fixture(scope="module")

@@ -240,3 +240,65 @@ def test_route_assessment_posted_and_verified(client):
     assert verified["recomputation"]["values_compared"] > 1000
     geo = client.get(f"/v1/assessments/{report['id']}/geojson")
     assert geo.status_code == 200 and geo.mimetype == "application/geo+json"
+
+
+# --------------------------------------------------------------------------- chain check in pages
+
+
+def _pages(client, limit: int) -> list[dict]:
+    pages, start = [], 1
+    while start is not None:
+        page = client.get(f"/v1/audit/verify-chain?from_sequence={start}&limit={limit}").get_json()
+        pages.append(page)
+        start = page["next_from_sequence"]
+    return pages
+
+
+def test_chain_in_pages_covers_every_record_once(db_app):
+    client = db_app.test_client()
+    for k in range(5):
+        post(client, f"record {k}")
+    pages = _pages(client, 2)
+    assert [(p["from_sequence"], p["to_sequence"], p["complete"]) for p in pages] == [
+        (1, 2, False), (3, 4, False), (5, 5, True)]
+    assert sum(p["records_checked"] for p in pages) == 5 and all(p["ok"] for p in pages)
+    whole = client.get("/v1/audit/verify-chain").get_json()
+    assert (whole["from_sequence"], whole["to_sequence"], whole["complete"], whole["next_from_sequence"]) == (
+        1, 5, True, None)
+
+
+def test_paged_check_finds_the_same_breaks_as_the_whole_chain(db_app):
+    # A row deleted at a page boundary (sequence 3 is the predecessor of page 4..5) and an
+    # altered row inside a page: every break the whole-chain check reports appears on a page.
+    client = db_app.test_client()
+    ids = [post(client, f"record {k}")["id"] for k in range(6)]
+    execute(db_app, delete(AssessmentRecord.__table__).where(AssessmentRecord.id == uuid.UUID(ids[2])))
+    execute(db_app, update(AssessmentRecord.__table__).where(AssessmentRecord.id == uuid.UUID(ids[4]))
+            .values(title="edited"))
+    whole = client.get("/v1/audit/verify-chain").get_json()
+    paged = [b for p in _pages(client, 3) for b in p["breaks"]]
+    assert {b["sequence"] for b in whole["breaks"]} <= {b["sequence"] for b in paged}
+    page = client.get("/v1/audit/verify-chain?from_sequence=4&limit=2").get_json()
+    assert page["ok"] is False and page["first_break"]["sequence"] == 4
+    assert any("no record at sequence 3" in r for r in page["first_break"]["reasons"])
+
+
+def test_page_before_the_head_does_not_check_the_head(db_app):
+    client = db_app.test_client()
+    ids = [post(client, f"record {k}")["id"] for k in range(3)]
+    execute(db_app, delete(AssessmentRecord.__table__).where(AssessmentRecord.id == uuid.UUID(ids[2])))
+    first = client.get("/v1/audit/verify-chain?limit=2").get_json()
+    assert first["ok"] is True and first["complete"] is False and first["next_from_sequence"] == 3
+    last = client.get("/v1/audit/verify-chain?from_sequence=3").get_json()
+    assert last["ok"] is False and "deleted at the end" in last["first_break"]["reasons"][0]
+
+
+@pytest.mark.parametrize("query, parameter", [
+    ("from_sequence=0", "from_sequence"), ("from_sequence=abc", "from_sequence"),
+    ("from_sequence=9", "from_sequence"), ("limit=0", "limit"), ("limit=100001", "limit"),
+])
+def test_bad_page_parameters_are_400_naming_the_parameter(client, query, parameter):
+    post(client)
+    r = client.get(f"/v1/audit/verify-chain?{query}")
+    assert r.status_code == 400 and r.mimetype == "application/problem+json"
+    assert [e["parameter"] for e in r.get_json()["errors"]] == [parameter]
