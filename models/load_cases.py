@@ -1,0 +1,92 @@
+"""Load cases: the same cross-section under other loading (what-if studies).
+
+A load case changes how a line is loaded, never its geometry.  Per circuit it can
+set the balanced current ``current_a`` and the line-to-line voltage ``voltage_kv``.
+``current_scale`` then multiplies every current of the section: circuit currents,
+per-conductor current phasors and earth-wire currents.  Conductors with an explicit
+current or voltage phasor keep that phasor (scaled by ``current_scale``): the
+circuit values do not apply to them, as in the base case.
+
+B is linear in the currents and E in the voltages (superposition, quasi-static
+Maxwell equations), so a case that only scales currents scales B by the same factor
+and leaves E unchanged; the tests check exactly that against the engine.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping
+
+from .errors import LoadingError, must_be
+from .geometry import CrossSection, CurrentPhasor
+
+__all__ = ["apply_loading"]
+
+
+def _non_negative(value: float, field: str) -> float:
+    v = float(value)
+    if not (math.isfinite(v) and v >= 0.0):
+        raise must_be(field, "a finite number >= 0", value, LoadingError)
+    return v
+
+
+def _scaled(current: CurrentPhasor | None, scale: float) -> CurrentPhasor | None:
+    return None if current is None else dataclasses.replace(current, magnitude_a=current.magnitude_a * scale)
+
+
+def apply_loading(
+    section: CrossSection,
+    *,
+    currents_a: Mapping[str, float] | None = None,
+    voltages_kv: Mapping[str, float] | None = None,
+    current_scale: float = 1.0,
+    field: str = "load_case",
+) -> CrossSection:
+    """The section with other circuit currents/voltages and all currents scaled.
+
+    Parameters
+    ----------
+    section : CrossSection
+        The base case.
+    currents_a, voltages_kv : mapping of circuit id to value, optional
+        New balanced current [A] / line-to-line voltage [kV] of those circuits.
+    current_scale : float
+        Factor on every current after the replacements (>= 0).
+    field : str
+        Prefix of error field names (``f"{field}.currents_a.{id}"``).
+
+    Returns
+    -------
+    CrossSection
+        A new section; ``section`` is unchanged.
+
+    Raises
+    ------
+    LoadingError
+        A circuit id not in the section, or a negative or non-finite value (field named).
+
+    Examples
+    --------
+    >>> from models.geometry import Bundle, Circuit, Conductor
+    >>> c = Circuit("c1", "overhead", 132.0, 500.0, (Conductor("L1", 0.0, 12.0),), Bundle(0.03))
+    >>> apply_loading(CrossSection((c,)), currents_a={"c1": 800.0}, current_scale=1.5).circuits[0].current_a
+    1200.0
+    """
+    ids = [c.id for c in section.circuits]
+    scale = _non_negative(current_scale, f"{field}.current_scale")
+    new_i = {}
+    for name, values in (("currents_a", currents_a or {}), ("voltages_kv", voltages_kv or {})):
+        for cid, value in values.items():
+            if cid not in ids:
+                raise LoadingError(f"{field}.{name}.{cid}",
+                                   f"No circuit {cid!r} in the cross-section (circuits: {', '.join(ids)}).")
+            new_i[(name, cid)] = _non_negative(value, f"{field}.{name}.{cid}")
+    circuits = []
+    for c in section.circuits:
+        current = new_i.get(("currents_a", c.id), c.current_a)
+        voltage = new_i.get(("voltages_kv", c.id), c.voltage_kv)
+        conductors = tuple(dataclasses.replace(k, current=_scaled(k.current, scale)) for k in c.conductors)
+        circuits.append(dataclasses.replace(c, current_a=current * scale, voltage_kv=voltage, conductors=conductors))
+    earth_wires = tuple(dataclasses.replace(w, current=_scaled(w.current, scale)) for w in section.earth_wires)
+    return dataclasses.replace(section, circuits=tuple(circuits), earth_wires=earth_wires)
