@@ -302,8 +302,10 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
         every threshold is met),
         ``engine_version``, ``catalogue_version``, ``frequency_hz``,
         ``compliance_quantity``, ``input`` (the normalised request), ``maxima``,
-        ``compliance``, ``assumptions``, ``cautions``, ``points``, and ``right_of_way``
-        (see :func:`right_of_way_block`) when the request gives one.
+        ``compliance``, ``assumptions``, ``cautions``, ``points``, ``right_of_way``
+        (see :func:`right_of_way_block`) when the request gives one, and ``load_cases``
+        with ``load_case_summary`` when it gives load cases
+        (:func:`service.load_case_report.load_case_blocks`).
 
     Raises
     ------
@@ -337,4 +339,8 @@ def build_report(request: AssessmentRequest) -> dict[str, Any]:
     }
     if edges is not None:
         report["right_of_way"] = edges
+    if request.load_cases:
+        from .load_case_report import load_case_blocks
+
+        report["load_cases"], report["load_case_summary"] = load_case_blocks(request, limits, compliance, result)
     return report

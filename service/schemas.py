@@ -224,6 +224,49 @@ class RightOfWaySchema(Schema):
         return RightOfWay(**data)
 
 
+# --------------------------------------------------------------------------- load cases
+
+
+MAX_LOAD_CASES = 16
+"""Load cases per request (besides the base case, the request as given)."""
+
+LOAD_CASE_POINT_FACTOR = 4
+"""(load cases + 1) x points may be at most this many times the per-request point cap."""
+
+
+@dataclass(frozen=True)
+class LoadCase:
+    """Other loading of the same cross-section (:func:`models.load_cases.apply_loading`)."""
+
+    id: str
+    label: str = ""
+    current_scale: float = 1.0
+    currents_a: dict[str, float] | None = None
+    voltages_kv: dict[str, float] | None = None
+
+
+class LoadCaseSchema(Schema):
+    id = fields.String(required=True, validate=ID_TEXT)
+    label = fields.String(load_default="", validate=validate.Length(max=200))
+    current_scale = FiniteFloat(load_default=1.0, validate=NON_NEGATIVE)
+    currents_a = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+                             validate=validate.Length(min=1))
+    voltages_kv = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+                              validate=validate.Length(min=1))
+
+    @validates_schema
+    def changes_something(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if data.get("id") == "base":
+            raise ValidationError("'base' names the request as given; choose another id.", field_name="id")
+        if data.get("current_scale", 1.0) == 1.0 and not data.get("currents_a") and not data.get("voltages_kv"):
+            raise ValidationError("A load case must change the loading: give current_scale, currents_a or "
+                                  "voltages_kv.", field_name="current_scale")
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> LoadCase:
+        return LoadCase(**data)
+
+
 # --------------------------------------------------------------------------- limits and the request
 
 
@@ -266,6 +309,7 @@ class AssessmentRequest:
     points: tuple[Point, ...] | None = None
     soil_resistivity_ohm_m: float | None = None
     right_of_way: RightOfWay | None = None
+    load_cases: tuple[LoadCase, ...] | None = None
 
 
 class AssessmentBaseSchema(Schema):
@@ -306,6 +350,34 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
     profile = fields.Nested(ProfileSchema)
     points = fields.List(fields.Nested(PointSchema), validate=validate.Length(min=1))
     right_of_way = fields.Nested(RightOfWaySchema)
+    load_cases = fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
+
+    @validates_schema
+    def load_cases_fit(self, data: dict[str, Any], **kwargs: Any) -> None:
+        cases = data.get("load_cases")
+        if not cases or "cross_section" not in data:
+            return
+        ids = [c.id for c in data["cross_section"].circuits]
+        errors: dict[int, Any] = {}
+        seen: set[str] = set()
+        for i, case in enumerate(cases):
+            if case.id in seen:
+                errors.setdefault(i, {})["id"] = [f"Load case id {case.id!r} is used twice."]
+            seen.add(case.id)
+            for name in ("currents_a", "voltages_kv"):
+                unknown = {cid: [f"No circuit {cid!r} in the cross-section (circuits: {', '.join(ids)})."]
+                           for cid in (getattr(case, name) or {}) if cid not in ids}
+                if unknown:
+                    errors.setdefault(i, {})[name] = unknown
+        if errors:
+            raise ValidationError({"load_cases": errors})
+        n = (profile_point_count(data["profile"].from_m, data["profile"].to_m, data["profile"].step_m)
+             if "profile" in data else len(data.get("points", ())))
+        cap = LOAD_CASE_POINT_FACTOR * self.max_points
+        if (len(cases) + 1) * n > cap:
+            raise ValidationError(f"{len(cases) + 1} cases (with the base case) x {n:.0f} points exceed "
+                                  f"{cap} evaluated points; use fewer load cases or a coarser profile.",
+                                  field_name="load_cases")
 
     @validates_schema
     def points_and_size(self, data: dict[str, Any], **kwargs: Any) -> None:
@@ -333,6 +405,8 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
         data["custom_limits"] = tuple(data["custom_limits"])
         if "points" in data:
             data["points"] = tuple(data["points"])
+        if "load_cases" in data:
+            data["load_cases"] = tuple(data["load_cases"])
         return AssessmentRequest(**data)
 
 

@@ -1,0 +1,112 @@
+"""Load cases in cross-section requests: what-if loading judged in one report.
+
+References: superposition (B linear in the currents, E in the voltages) checked
+against separate requests built with the changed values; Ampère's law for one
+long straight conductor (mu0 from scipy.constants, CODATA); the OpenAPI document
+for the response shape.
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+import scipy.constants
+
+from .test_api import PROBLEM, small_body, stored_count
+from .test_openapi import check_response, spec  # noqa: F401 (fixture)
+
+CASES = [{"id": "peak", "label": "Winter peak rating", "currents_a": {"c1": 1500}},
+         {"id": "uprate", "label": "Uprated voltage", "voltages_kv": {"c1": 150}, "current_scale": 0.5}]
+
+
+def with_cases(cases=None, **changes) -> dict:
+    return small_body(load_cases=CASES if cases is None else cases, **changes)
+
+
+def test_each_case_equals_a_separate_request_with_that_loading(client, spec):
+    response = client.post("/v1/evaluate", json=with_cases())
+    check_response(spec, response)
+    report = response.get_json()
+    cases = {c["id"]: c for c in report["load_cases"]}
+    assert list(cases) == ["base", "peak", "uprate"]
+    for case_id, changes in (("peak", {"current_a": 1500}), ("uprate", {"voltage_kv": 150, "current_a": 250})):
+        body = small_body()
+        body["cross_section"]["circuits"][0].update(changes)
+        separate = client.post("/v1/evaluate", json=body).get_json()
+        case = cases[case_id]
+        assert case["maxima"]["b"]["value_ut"] == pytest.approx(separate["maxima"]["b"]["value_ut"], rel=1e-12)
+        assert case["maxima"]["e"]["value_kv_m"] == pytest.approx(separate["maxima"]["e"]["value_kv_m"], rel=1e-12)
+        for a, b in zip(case["points"], separate["points"]):
+            assert (a["offset_m"], a["height_m"]) == (b["offset_m"], b["height_m"])
+            assert a["b_ut"] == pytest.approx(b["b_ut"], rel=1e-12) and a["e_kv_m"] == pytest.approx(b["e_kv_m"], rel=1e-12)
+        assert [c["exposure_index"] for c in case["compliance"]] == pytest.approx(
+            [c["exposure_index"] for c in separate["compliance"]], rel=1e-12)
+        assert case["outcome"] == separate["outcome"]
+    base = cases["base"]
+    assert base["label"] == "As requested" and base["maxima"] == report["maxima"]
+    assert base["loading"] == {"current_scale": 1.0, "currents_a": {"c1": 500.0}, "voltages_kv": {"c1": 132.0}}
+    assert cases["uprate"]["loading"]["currents_a"] == {"c1": 250.0}
+    # B scales with the current (superposition): 1500 A is three times the base 500 A
+    assert cases["peak"]["maxima"]["b"]["value_ut"] == pytest.approx(3 * base["maxima"]["b"]["value_ut"], rel=1e-12)
+
+
+def test_summary_names_the_governing_case_and_the_overall_outcome(client):
+    # Ampère: one conductor 10 m up, 1 m above ground: B = mu0 I / (2 pi 9 m); a 30 µT custom
+    # limit passes at 1000 A (22.2 µT) and fails at 1500 A (33.3 µT).
+    body = small_body(custom_limits=[{"id": "plan", "quantity": "B", "value": 30, "unit": "µT"}],
+                      load_cases=[{"id": "peak", "currents_a": {"c1": 1500}}, {"id": "low", "current_scale": 0.2}])
+    c = body["cross_section"]["circuits"][0]
+    c.update(voltage_kv=0, current_a=1000, conductors=[{"phase": "L1", "offset_m": 0, "height_m": 10}])
+    report = client.post("/v1/evaluate", json=body).get_json()
+    assert report["outcome"] == "pass"  # the request as given
+    summary = report["load_case_summary"]
+    assert summary["outcome"] == "fail" and summary["failing_cases"] == ["peak"] and summary["cases"] == 3
+    plan = next(g for g in summary["governing"] if g["level_id"] == "plan")
+    expected = scipy.constants.mu_0 * 1500 / (2 * math.pi * 9.0) * 1e6 / 30.0
+    assert plan["case_id"] == "peak" and plan["exposure_index"] == pytest.approx(expected, rel=1e-6)
+    assert plan["passes"] is False
+
+
+def test_without_load_cases_the_report_and_input_are_unchanged(client):
+    report = client.post("/v1/evaluate", json=small_body()).get_json()
+    assert "load_cases" not in report and "load_case_summary" not in report
+    assert "load_cases" not in report["input"]
+
+
+def test_stored_assessment_with_load_cases_round_trips_and_verifies(app, client):
+    created = client.post("/v1/assessments", json=with_cases())
+    assert created.status_code == 201
+    body = created.get_json()
+    assert [c["id"] for c in body["input"]["load_cases"]] == ["peak", "uprate"]
+    assert client.post(created.headers["Location"] + "/verify").get_json()["verdict"] == "match"
+    html = client.get(created.headers["Location"] + "/report?format=html").get_data(as_text=True)
+    assert 'id="load-cases"' in html and "Winter peak rating" in html
+
+
+@pytest.mark.parametrize("cases, pointer", [
+    ([{"id": "x", "currents_a": {"nope": 10}}], "/load_cases/0/currents_a/nope"),
+    ([{"id": "x", "voltages_kv": {"c1": -1}}], "/load_cases/0/voltages_kv/c1/value"),
+    ([{"id": "x", "current_scale": -2}], "/load_cases/0/current_scale"),
+    ([{"id": "x"}], "/load_cases/0/current_scale"),
+    ([{"id": "base", "current_scale": 2}], "/load_cases/0/id"),
+    ([{"id": "x", "current_scale": 2}, {"id": "x", "current_scale": 3}], "/load_cases/1/id"),
+    ([], "/load_cases"),
+    ([{"id": f"c{k}", "current_scale": 2} for k in range(17)], "/load_cases"),
+    ([{"currents_a": {"c1": 10}}], "/load_cases/0/id"),
+])
+def test_bad_load_cases_are_422_naming_the_field_and_store_nothing(app, client, cases, pointer):
+    before = stored_count(app)
+    r = client.post("/v1/assessments", json=with_cases(cases))
+    assert r.status_code == 422 and r.mimetype == PROBLEM, r.get_data(as_text=True)
+    pointers = [e["pointer"] for e in r.get_json()["errors"]]
+    assert pointer in pointers, pointers
+    assert stored_count(app) == before
+
+
+def test_too_many_case_points_is_422(client):
+    body = with_cases([{"id": f"c{k}", "current_scale": 2} for k in range(16)],
+                      profile={"from_m": -100, "to_m": 100, "step_m": 0.03, "height_m": 1})
+    r = client.post("/v1/evaluate", json=body)
+    assert r.status_code == 422
+    assert "/load_cases" in [e["pointer"] for e in r.get_json()["errors"]]
