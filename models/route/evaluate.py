@@ -43,6 +43,7 @@ from .evaluation import (
     receptor_points,
 )
 from .magnetic3d import flux_density_segments
+from .right_of_way import right_of_way_edges
 from .types import Route
 from .zones import zone_features
 
@@ -58,7 +59,7 @@ of interest; checked in ``tests/models/route/test_evaluate.py`` against the 2-D
 engine at mid-span).
 """
 
-SET_ORDER = ("path", "lateral_profile", "receptors", "grid")
+SET_ORDER = ("path", "lateral_profile", "receptors", "grid", "right_of_way")
 
 PATH_DENSIFY_DEG = 1e-4
 """Largest vertex spacing of a lon/lat path before it is transformed (about 11 m) [deg]."""
@@ -70,19 +71,27 @@ class RouteSetResult:
 
     Attributes
     ----------
-    kind : {"path", "lateral_profile", "receptors", "grid"}
+    kind : {"path", "lateral_profile", "receptors", "grid", "right_of_way"}
     field : FieldResult
         ``points_m`` (n, 3) in the working metre plane [m]; E [V/m] and B [T] phasors (n, 3).
     x, y : ndarray, shape (n,)
         Positions in the request CRS (metres, or longitude/latitude in degrees).
     distance_m : ndarray or None
-        Path: distance along the path from its first position [m].
+        Path: distance along the path from its first position [m]; right-of-way:
+        distance along the edge from its start.
     offset_m : ndarray or None
-        Lateral profile: offset from the centre line, + right [m].
+        Lateral profile: offset from the centre line, + right [m]; right-of-way: the
+        offset of the point's edge.
     ids, names : tuple of str or None
         Receptors: id and name of each point.
     grid : GridAxes or None
         Grid: axes in the working plane; per-point arrays reshape to ``grid.shape``.
+    chainage_m : ndarray or None
+        Right-of-way: chainage of the nearest centre-line point [m].
+    edges : tuple of str or None
+        Right-of-way: ``"left"`` or ``"right"`` per point (left edge first).
+    edge_samples : tuple of EdgeSamples or None
+        Right-of-way: both sampled edges with their polyline vertices (working plane).
     """
 
     kind: str
@@ -94,6 +103,9 @@ class RouteSetResult:
     ids: tuple[str, ...] | None = None
     names: tuple[str, ...] | None = None
     grid: GridAxes | None = None
+    chainage_m: np.ndarray | None = None
+    edges: tuple[str, ...] | None = None
+    edge_samples: tuple | None = None
 
 
 @dataclass(frozen=True)
@@ -108,7 +120,7 @@ class RouteResult:
     route_m : Route
         The route with supports in the working plane [m].
     sets : dict of str -> RouteSetResult
-        Evaluated sets, in the order path, lateral_profile, receptors, grid.
+        Evaluated sets, in the order path, lateral_profile, receptors, grid, right_of_way.
     combined : FieldResult
         All evaluated points of all sets, concatenated in that order (for maxima and
         compliance over everything evaluated); ``slices[kind]`` gives each set's rows.
@@ -249,7 +261,7 @@ def evaluate_route(
     frequency_hz : float
         Power frequency [Hz].
     evaluation : EvaluationSets
-        Path, lateral profile, receptors, grid (any combination, at least one) and
+        Path, lateral profile, receptors, grid, right-of-way edges (any combination, at least one) and
         zones (which need the grid).
     crs : str, optional
         Request CRS (``None`` = local metres; see :mod:`models.route.crs`).
@@ -296,7 +308,7 @@ def evaluate_route(
     rho = validate_soil_resistivity(soil_resistivity_ohm_m)
     if evaluation.is_empty:
         raise EngineInputError("path", "A route assessment needs at least one evaluation set: "
-                                       "path, lateral_profile, receptors or grid.")
+                                       "path, lateral_profile, receptors, grid or right_of_way.")
     if evaluation.zones is not None and evaluation.grid is None:
         raise EngineInputError("zones", "Exposure zones are contoured from the grid evaluation set; add a 'grid'.")
     if len(route.supports) < 2:
@@ -336,6 +348,18 @@ def evaluate_route(
         bounds = _grid_bounds_m(frame, evaluation.grid.bbox, "grid.bbox")
         grid = grid_axes(bounds, evaluation.grid.resolution_m, evaluation.grid.height_m, max_points=max_points)
         pieces["grid"] = {"points": grid.points_m(), "grid": grid}
+    n_left = 0
+    if evaluation.right_of_way is not None:
+        edges = right_of_way_edges(route_m, evaluation.right_of_way, max_points=max_points)
+        n_left = len(edges[0].points_m)
+        pieces["right_of_way"] = {
+            "points": np.concatenate([e.points_m for e in edges]),
+            "distance_m": np.concatenate([e.distance_m for e in edges]),
+            "chainage_m": np.concatenate([e.chainage_m for e in edges]),
+            "offset_m": np.concatenate([np.full(len(e.distance_m), e.offset_m) for e in edges]),
+            "edges": tuple(e.edge for e in edges for _ in range(len(e.distance_m))),
+            "edge_samples": edges,
+        }
 
     slices: dict[str, slice] = {}
     start = 0
@@ -357,6 +381,7 @@ def evaluate_route(
         "lateral_profile": lambda i: "lateral_profile.height_m",
         "receptors": lambda i: f"receptors.features[{i}]",
         "grid": lambda i: "grid.height_m",
+        "right_of_way": lambda i: "right_of_way.left_m" if i < n_left else "right_of_way.right_m",
     }
     try:
         b = flux_density_segments(points, seg_b)
@@ -378,7 +403,9 @@ def evaluate_route(
         else:
             x, y = frame.to_request(points[sl, 0], points[sl, 1])
         sets[kind] = RouteSetResult(kind, fr, x, y, distance_m=piece.get("distance_m"), offset_m=piece.get("offset_m"),
-                                    ids=piece.get("ids"), names=piece.get("names"), grid=piece.get("grid"))
+                                    ids=piece.get("ids"), names=piece.get("names"), grid=piece.get("grid"),
+                                    chainage_m=piece.get("chainage_m"), edges=piece.get("edges"),
+                                    edge_samples=piece.get("edge_samples"))
 
     zones = None
     if evaluation.zones is not None:
@@ -420,6 +447,11 @@ def _assumptions(frame: WorkingFrame, f: float, rho: float | None, route_m: Rout
     if evaluation.lateral_profile is not None:
         items.append("The lateral profile is perpendicular to the span at its chainage (the span leaving an angle "
                      "support when the chainage falls exactly on it).")
+    if evaluation.right_of_way is not None:
+        row = evaluation.right_of_way
+        items.append(f"Right-of-way edges: lines parallel to the route centre line at {row.left_m:g} m and "
+                     f"{row.right_m:g} m (+ right), mitred along the bisector at angle supports, sampled every "
+                     f"{row.step_m:g} m along each edge at {row.height_m:g} m above ground.")
     if evaluation.zones is not None and grid is not None:
         res = float(max(np.max(np.diff(grid.x_m)), np.max(np.diff(grid.y_m))))
         items.append(f"Exposure zones are contoured (linear interpolation) from the {grid.shape[0]} x {grid.shape[1]} "

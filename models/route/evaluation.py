@@ -1,6 +1,6 @@
 """Evaluation sets of a route assessment: where the 3-D fields are computed.
 
-Four kinds of set, in any combination (RFC 7946 geometry for the GIS-facing ones):
+Five kinds of set, in any combination (RFC 7946 geometry for the GIS-facing ones):
 
 * :class:`PathSet` -- a polyline (a footpath, a property boundary) sampled every
   ``step_m`` along its length, both ends included;
@@ -8,7 +8,9 @@ Four kinds of set, in any combination (RFC 7946 geometry for the GIS-facing ones
   zones, :mod:`models.route.zones`);
 * :class:`Receptor` -- named points ("house 12") each at its own height;
 * :class:`LateralProfileSet` -- a line perpendicular to the route at a chainage
-  measured along the route centre line from the first support.
+  measured along the route centre line from the first support;
+* :class:`models.route.right_of_way.RightOfWaySet` -- the two right-of-way edges,
+  parallel to the centre line, sampled along the whole route.
 
 The dataclasses hold request coordinates (request CRS); the ``*_points`` functions
 take geometry already in the engine's metre plane (see :mod:`models.route.crs`) and
@@ -27,6 +29,7 @@ from shapely.geometry import LineString
 
 from ..errors import EngineInputError, must_be
 from .geometry import frame_at_chainage, support_chainage_m
+from .right_of_way import RightOfWaySet
 from .types import Route
 
 
@@ -115,11 +118,13 @@ class EvaluationSets:
     receptors: tuple[Receptor, ...] = field(default_factory=tuple)
     grid: GridSet | None = None
     zones: ZoneSet | None = None
+    right_of_way: RightOfWaySet | None = None
 
     @property
     def is_empty(self) -> bool:
         """True when no point set is requested."""
-        return self.path is None and self.lateral_profile is None and not self.receptors and self.grid is None
+        return (self.path is None and self.lateral_profile is None and not self.receptors and self.grid is None
+                and self.right_of_way is None)
 
 
 def _check_count(n: int, max_points: int | None, field_name: str) -> None:
