@@ -375,4 +375,17 @@ def test_several_load_cases_get_a_figure_and_a_table(report):
     assert ctx["cases"]["figure"] and [c["label"] for c in ctx["cases"]["table"]] == ["maximum rating", "annual mean"]
     assert ctx["cases"]["table"][1]["b"] == reports.format_number(rep["maxima"]["b"]["value_ut"] / 2)
     assert 'id="load-cases"' in reports.render_html(rep)
-    assert reports.html_context(report)["cases"] is None  # one case: nothing extra
+    single = {k: v for k, v in report.items() if k not in ("load_cases", "load_case_summary")}
+    assert reports.html_context(single)["cases"] is None  # one case: nothing extra
+
+
+def test_demo_load_cases_come_from_the_service(report):
+    # The demo request has three load cases; the section lists the base case and those, with
+    # the maxima the service computed for each (superposition: 1.8 x the current, 1.8 x B).
+    ctx = reports.html_context(report)
+    labels = [c["label"] for c in ctx["cases"]["table"]]
+    assert labels == ["As requested", "Winter peak rating (fictitious)",
+                      "East circuit out of service, west carrying both", "Annual mean load (fictitious)"]
+    base, peak = report["load_cases"][0], report["load_cases"][1]
+    assert peak["maxima"]["b"]["value_ut"] == pytest.approx(1.8 * base["maxima"]["b"]["value_ut"], rel=1e-12)
+    assert ctx["cases"]["table"][1]["b"] == reports.format_number(peak["maxima"]["b"]["value_ut"])
