@@ -724,7 +724,8 @@ def _pack_segments(segments: SegmentSet, charges: np.ndarray):
     starts = np.flatnonzero(new_line)
     links = np.diff(np.append(starts, m))
     padded = links + links % 2
-    first = np.concatenate([[0], np.cumsum(padded + 1)[:-1]]).astype(np.int64)
+    # [:len(starts)]: no charged segment at all (every conductor at 0 V) gives no polyline
+    first = np.concatenate([[0], np.cumsum(padded + 1)[:-1]])[:len(starts)].astype(np.int64)
     nv = int(np.sum(padded + 1))
     line_no = np.cumsum(new_line) - 1
     k = first[line_no] + (np.arange(m) - starts[line_no])

@@ -542,6 +542,18 @@ def test_screened_wires_carry_no_charge_and_add_no_field():
     np.testing.assert_array_equal(e3.electric_field_segments(pts, both), e3.electric_field_segments(pts, alone))
 
 
+def test_wires_at_zero_volts_give_no_charge_and_no_field():
+    # Reference: with every wire at 0 V above 0 V ground the solution is zero charge, and
+    # without charge there is no electric field (Gauss's law); a route with only
+    # current-carrying 0 V conductors must give E = 0, not an error.
+    wires = straight_wires([0.0, 6.0], [15.0, 15.0], 400.0, 20.0)
+    dead = polyline_set(wires, [0.0, 0.0], [0.02, 0.02])
+    q = e3.line_charges(dead)
+    assert np.all(q == 0)
+    pts = np.array([[0.0, 5.0, 0.0], [10.0, -3.0, 1.0]])
+    np.testing.assert_array_equal(e3.electric_field_segments(pts, dead, q), 0.0)
+
+
 def test_chunking_does_not_change_results():
     seg = polyline_set([catenary_wire(200.0, 18.0, 5.0, 30)], [1e5], [0.02])
     q = e3.line_charges(seg)
