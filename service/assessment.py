@@ -144,12 +144,13 @@ def threshold_row(t: catalogue.Threshold) -> dict[str, Any]:
 
 BASIS_NOTES = {
     "all_points": "Compared with the maximum over every evaluated point.",
-    "right_of_way_edges": "This level applies at the edge of the right-of-way: compared with the larger of the "
-                          "two values computed at the right-of-way edges.",
+    "right_of_way_edges": "This level applies at the edge of the right-of-way: compared with the largest value "
+                          "computed on the right-of-way edges (for a cross-section, the two edge offsets; for a "
+                          "route, every sample along both edges).",
     "all_points_conservative": "This level applies at the edge of the right-of-way, but no right-of-way edge was "
                                "evaluated: compared with the maximum over every evaluated point, which can only "
-                               "overstate the edge value. For a cross-section, give right_of_way to compare at "
-                               "the edges; for a route, read the receptors or a path placed on the edge.",
+                               "overstate the edge value. Give right_of_way (cross-section or route) to compare "
+                               "at the edges.",
 }
 """What each compliance ``basis`` means (``basis_note`` of a compliance row)."""
 

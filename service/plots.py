@@ -473,8 +473,9 @@ def _polygon_path(rings: list[list[tuple[float, float]]]) -> MplPath:
 
 def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[tuple[float, float]] | None = None,
                    receptors: Sequence[Mapping[str, Any]] = (), zones: Mapping[str, Any] | None = None,
-                   geographic: bool = False) -> Figure:
-    """Plan view of a route: centre line through the supports, evaluation path, receptors, exposure zones.
+                   geographic: bool = False, edges: Sequence[Sequence[tuple[float, float]]] = ()) -> Figure:
+    """Plan view of a route: centre line through the supports, evaluation path, receptors, exposure zones,
+    right-of-way edges.
 
     Parameters
     ----------
@@ -490,6 +491,9 @@ def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[t
     geographic : bool
         Coordinates are lon/lat degrees: axes are labelled so and the aspect is corrected
         by cos(latitude) so that the map is not stretched.
+    edges : sequence of sequence of (x, y)
+        Right-of-way edge polylines, drawn dash-dot (the pattern of the edges in the
+        lateral profile).
     """
     fig = _figure(9.0, 6.0)
     ax = fig.add_subplot()
@@ -528,6 +532,10 @@ def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[t
     for s in supports:
         ax.annotate(_label(s.get("id", "")), xy=(float(s["x"]), float(s["y"])), xytext=(5, 5),
                     textcoords="offset points", fontsize=_FONT_SIZE - 1, color=_INK, zorder=5)
+    for k, edge in enumerate(edges):
+        e = np.asarray(edge, dtype=float)
+        ax.plot(e[:, 0], e[:, 1], color=_INK, linewidth=0.9, linestyle=(0, (4, 1, 1, 1)),
+                label="right-of-way edge" if k == 0 else None, zorder=2)
     if path is not None and len(path) > 1:
         p = np.asarray(path, dtype=float)
         ax.plot(p[:, 0], p[:, 1], color=_INK, linewidth=1.3, linestyle=(0, (5, 2)), label="evaluation path",

@@ -120,7 +120,8 @@ def _flatten(row: Mapping[str, Any], prefix: str = "") -> dict[str, Any]:
 
 def point_sets(report: Mapping[str, Any], *, include_grid: bool = True) -> list[tuple[str, list[Mapping[str, Any]]]]:
     """Named lists of evaluated points: ``[("profile" | "points", rows)]`` for a cross-section,
-    ``[("path", ...), ("lateral_profile", ...), ("receptors", ...), ("grid", ...)]`` for a route."""
+    ``[("path", ...), ("lateral_profile", ...), ("receptors", ...), ("grid", ...), ("right_of_way", ...)]``
+    for a route (the right-of-way rows of both edges, left first, each with its ``edge``)."""
     if not is_route_report(report):
         name = "profile" if "profile" in (report.get("input") or {}) else "points"
         return [(name, list(report.get("points", ())))]
@@ -137,6 +138,11 @@ def point_sets(report: Mapping[str, Any], *, include_grid: bool = True) -> list[
             sets.append(("grid", rows))
     elif isinstance(grid, list):
         sets.append(("grid", grid))
+    edges = results.get("right_of_way")
+    if isinstance(edges, Mapping):
+        rows = [row for edge in ("left", "right") for row in edges.get(edge) or ()]
+        if rows:
+            sets.append(("right_of_way", rows))
     return sets
 
 
@@ -168,7 +174,8 @@ def grid_rows(grid: Mapping[str, Any]) -> list[dict[str, Any]]:
 
 # --------------------------------------------------------------------------- CSV
 
-_LEADING_COLUMNS = ("set", "id", "name", "x", "y", "distance_m", "offset_m", "height_m", "e_kv_m", "b_ut",
+_LEADING_COLUMNS = ("set", "id", "name", "edge", "x", "y", "distance_m", "chainage_m", "offset_m", "height_m",
+                    "e_kv_m", "b_ut",
                     "e_max_kv_m", "b_max_ut", "e_axial_ratio", "b_axial_ratio")
 
 
@@ -183,9 +190,9 @@ def _csv_number(value: Any) -> Any:
 def render_csv(report: Mapping[str, Any]) -> str:
     """One row per evaluated point; header row of column names with unit suffixes.
 
-    Columns: ``set`` (profile, points, path, lateral_profile, receptors, grid), position
-    (``offset_m``/``height_m``, or ``x``/``y``/``distance_m`` for routes, plus ``id``/``name``
-    of receptors), ``e_kv_m``, ``b_ut`` (resultants), ``e_max_kv_m``, ``b_max_ut``
+    Columns: ``set`` (profile, points, path, lateral_profile, receptors, grid, right_of_way),
+    position (``offset_m``/``height_m``, or ``x``/``y``/``distance_m`` for routes, plus
+    ``id``/``name`` of receptors, ``edge``/``chainage_m`` of right-of-way samples), ``e_kv_m``, ``b_ut`` (resultants), ``e_max_kv_m``, ``b_max_ut``
     (ellipse maxima), axial ratios, field components (``e_horizontal_kv_m``, ...,
     phases in degrees), then ``exposure_index:<level_id>:<E|B>`` for each compliance
     entry (value of the compliance quantity / limit, dimensionless).  Numbers are
@@ -285,11 +292,13 @@ def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
     """FeatureCollection of a route assessment, in the request's coordinates.
 
     Features: the route centre line (LineString through the supports) and supports,
-    every evaluated path / lateral-profile / grid point that carries ``x``/``y`` (Point,
-    properties = the point's values and exposure indices), receptors (Point with ``id``,
-    ``name``, values), and the exposure zones (Polygon/MultiPolygon, right-hand rule).
-    Every feature has a ``kind`` property (``route``, ``support``, ``path``,
-    ``lateral_profile``, ``grid``, ``receptor``, ``zone``).
+    the right-of-way edges when given (LineString, vertices at the supports, with the
+    largest E and B along the edge), every evaluated path / lateral-profile / grid /
+    right-of-way point that carries ``x``/``y`` (Point, properties = the point's values
+    and exposure indices), receptors (Point with ``id``, ``name``, values), and the
+    exposure zones (Polygon/MultiPolygon, right-hand rule).  Every feature has a
+    ``kind`` property (``route``, ``support``, ``right_of_way_edge``, ``path``,
+    ``lateral_profile``, ``grid``, ``right_of_way``, ``receptor``, ``zone``).
 
     Coordinates are those of the request: lon/lat degrees when the request was in
     EPSG:4326 (RFC 7946's own CRS).  For a projected or local CRS they stay in metres
@@ -315,6 +324,12 @@ def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
     for s in supports:
         features.append({"type": "Feature", "properties": {"kind": "support", "id": s.get("id")},
                          "geometry": {"type": "Point", "coordinates": [float(s["x"]), float(s["y"])]}})
+    for edge in (report.get("right_of_way") or {}).get("edges", ()):
+        geom = edge.get("geometry")
+        if isinstance(geom, Mapping) and geom.get("type") == "LineString":
+            props = {"kind": "right_of_way_edge", "edge": edge.get("edge"), "offset_m": edge.get("offset_m"),
+                     "height_m": edge.get("height_m"), "e_kv_m": edge.get("e_kv_m"), "b_ut": edge.get("b_ut")}
+            features.append({"type": "Feature", "properties": props, "geometry": dict(geom)})
     omitted = 0
     for name, rows in point_sets(report):
         kind = "receptor" if name == "receptors" else name
@@ -434,8 +449,10 @@ def _route_plan(report: Mapping[str, Any]) -> str | None:
             exceeds = any(isinstance(r.get(key), (int, float)) and float(r[key]) > limit
                           for _, key, _, limit in exposure_columns(report))
             receptors.append({**r, "exceeds": exceeds})
+    edges = [[(float(x), float(y)) for x, y in (e.get("geometry") or {}).get("coordinates", ())]
+             for e in (report.get("right_of_way") or {}).get("edges", ())]
     return plots.route_plan_svg(supports, path=path, receptors=receptors, zones=_labelled_zones(report),
-                                geographic=_is_geographic(report))
+                                geographic=_is_geographic(report), edges=[e for e in edges if len(e) > 1])
 
 
 def _zone_label(props: Mapping[str, Any]) -> str:
@@ -484,7 +501,7 @@ def _cross_section_source(report: Mapping[str, Any]) -> tuple[Mapping[str, Any] 
 def _evaluation_heights(report: Mapping[str, Any]) -> list[float]:
     data = report.get("input") or {}
     heights = set()
-    for key in ("profile", "lateral_profile", "path", "grid"):
+    for key in ("profile", "lateral_profile", "path", "grid", "right_of_way"):
         item = data.get(key)
         if isinstance(item, Mapping) and isinstance(item.get("height_m"), (int, float)):
             heights.add(float(item["height_m"]))
@@ -581,10 +598,16 @@ def _edge_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     block = (report.get("right_of_way") or {})
     rows = []
     for edge in block.get("edges", ()):
+        where = ""
+        if isinstance(edge.get("b_location"), Mapping):  # a route: largest values along the edge, and where
+            where = "; ".join(f"{q} at chainage {float(loc['chainage_m']):.1f} m "
+                              f"({coordinate_text(loc['x'])}, {coordinate_text(loc['y'])})"
+                              for q, loc in (("E", edge.get("e_location")), ("B", edge["b_location"]))
+                              if isinstance(loc, Mapping))
         rows.append({
             "edge": edge.get("edge", ""), "offset": f"{float(edge['offset_m']):+.1f}",
             "height": f"{float(edge['height_m']):.1f}",
-            "e": format_number(edge.get("e_kv_m")), "b": format_number(edge.get("b_ut")),
+            "e": format_number(edge.get("e_kv_m")), "b": format_number(edge.get("b_ut")), "where": where,
             "exposure": [{"label": f"{x['level_id']} {x['quantity']}",
                           "index": format_number(x.get("exposure_index"), 3),
                           "passes": bool(x.get("passes"))} for x in edge.get("exposure", ())],
@@ -605,10 +628,11 @@ def _point_table(report: Mapping[str, Any], name: str, rows: Sequence[Mapping[st
     keep = [int(m.get("point_index")) for m in (report.get("maxima") or {}).values()
             if isinstance(m, Mapping) and isinstance(m.get("point_index"), int)] if name in ("profile", "points") else []
     idx = _table_sample(rows, 41, keep)
-    position_keys = [k for k in ("id", "name", "x", "y", "distance_m", "offset_m", "height_m")
+    position_keys = [k for k in ("id", "name", "edge", "x", "y", "distance_m", "chainage_m", "offset_m", "height_m")
                      if any(k in r for r in rows)]
     value_keys = [k for k in ("e_kv_m", "b_ut", "e_max_kv_m", "b_max_ut") if any(k in r for r in rows)]
-    labels = {"id": "id", "name": "name", "x": "x", "y": "y", "distance_m": "distance (m)", "offset_m": "offset (m)",
+    labels = {"id": "id", "name": "name", "edge": "edge", "x": "x", "y": "y", "distance_m": "distance (m)",
+              "chainage_m": "chainage (m)", "offset_m": "offset (m)",
               "height_m": "height (m)", "e_kv_m": "E (kV/m)", "b_ut": "B (µT)", "e_max_kv_m": "E max (kV/m)",
               "b_max_ut": "B max (µT)"}
     body = [[coordinate_text(rows[k][col]) if col in ("x", "y") and isinstance(rows[k].get(col), (int, float))
@@ -654,6 +678,9 @@ def location_text(loc: Any) -> str:
         parts.append(f"path, {float(loc['distance_m']):.1f} m along it")
     elif kind == "grid":
         parts.append("grid node")
+    elif kind == "right_of_way" and isinstance(loc.get("chainage_m"), (int, float)):
+        parts.append(f"{loc.get('edge', '')} right-of-way edge at chainage {float(loc['chainage_m']):.1f} m")
+        loc = {k: v for k, v in loc.items() if k != "offset_m"}
     if isinstance(loc.get("offset_m"), (int, float)):
         parts.append(f"offset {float(loc['offset_m']):+.1f} m" + (" (lateral profile)" if kind else ""))
     if kind and isinstance(loc.get("x"), (int, float)) and isinstance(loc.get("y"), (int, float)):

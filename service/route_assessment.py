@@ -3,10 +3,13 @@
 Same report frame as a cross-section (:func:`service.assessment.build_report`):
 ``title``, ``reference``, ``outcome``, versions, ``input``, ``maxima``,
 ``compliance``, ``assumptions``, ``cautions`` -- plus ``kind: "route"``, ``crs``,
-``results`` (one member per evaluation set) and ``zones`` (a GeoJSON
-FeatureCollection in the request CRS).  Field values are in presentation units
+``results`` (one member per evaluation set), ``zones`` (a GeoJSON
+FeatureCollection in the request CRS) and, when the request gives one,
+``right_of_way`` (largest E and B along each edge, where, exposure indices).  Field values are in presentation units
 (kV/m, µT); 3-D components are along x (east), y (north) and z (up) of the working
-metre plane.  Maxima and compliance run over every evaluated point of every set;
+metre plane.  Maxima and compliance run over every evaluated point of every set (the
+right-of-way edge samples included), except that a level applying at the edge of
+the right-of-way is judged on the edge samples when the request gives them;
 compliance distances come from the lateral profile when one is requested.
 """
 
@@ -86,12 +89,32 @@ def _grid_block(res: RouteResult) -> dict[str, Any]:
     return out
 
 
+def _edge_slices(s) -> dict[str, slice]:
+    """Rows of each edge (left, right) in the right-of-way set."""
+    n_left = len(s.edge_samples[0].distance_m)
+    return {"left": slice(0, n_left), "right": slice(n_left, len(s.edges))}
+
+
+def _edge_rows(s) -> dict[str, list[dict[str, Any]]]:
+    z = s.field.points_m[:, 2]
+    out = {}
+    for edge, sl in _edge_slices(s).items():
+        field = FieldResult(s.field.points_m[sl], s.field.frequency_hz, s.field.e_phasor_v_per_m[sl],
+                            s.field.b_phasor_t[sl], s.field.assumptions)
+        out[edge] = _rows({"edge": list(s.edges[sl]), "offset_m": s.offset_m[sl], "x": s.x[sl], "y": s.y[sl],
+                           "distance_m": s.distance_m[sl], "chainage_m": s.chainage_m[sl], "height_m": z[sl]},
+                          field)
+    return out
+
+
 def results_block(res: RouteResult) -> dict[str, Any]:
-    """The ``results`` member: per-set point rows (path, lateral profile, receptors) and the grid."""
+    """The ``results`` member: per-set point rows (path, lateral profile, receptors, right-of-way edges) and the grid."""
     out: dict[str, Any] = {}
     for kind, s in res.sets.items():
         z = s.field.points_m[:, 2]
-        if kind == "path":
+        if kind == "right_of_way":
+            out[kind] = _edge_rows(s)
+        elif kind == "path":
             out[kind] = _rows({"x": s.x, "y": s.y, "distance_m": s.distance_m, "height_m": z}, s.field)
         elif kind == "lateral_profile":
             out[kind] = _rows({"offset_m": s.offset_m, "x": s.x, "y": s.y, "height_m": z}, s.field)
@@ -108,6 +131,11 @@ def _where(res: RouteResult, index: int) -> dict[str, Any]:
     s = res.sets[kind]
     loc: dict[str, Any] = {"set": kind, "index": i, "x": float(s.x[i]), "y": float(s.y[i]),
                            "height_m": float(s.field.points_m[i, 2])}
+    if s.edges is not None:
+        # index within the edge's rows of results.right_of_way[edge]
+        loc["edge"] = s.edges[i]
+        loc["index"] = i - _edge_slices(s)[s.edges[i]].start
+        loc["chainage_m"] = float(s.chainage_m[i])
     if s.distance_m is not None:
         loc["distance_m"] = float(s.distance_m[i])
     if s.offset_m is not None:
@@ -126,8 +154,56 @@ def route_maxima(res: RouteResult) -> dict[str, Any]:
             "b": {"value_ut": float(b[kb]), **_where(res, kb)}}
 
 
+def right_of_way_block(request: RouteAssessmentRequest, res: RouteResult,
+                       limits: list[catalogue.Threshold]) -> dict[str, Any] | None:
+    """Per edge: largest resultant E [kV/m] and B [µT] along it, where, and the exposure index per threshold.
+
+    None when the request gives no right-of-way.  ``geometry`` is the edge polyline
+    (vertices at the supports) in the request CRS.
+    """
+    spec = request.evaluation.right_of_way
+    if spec is None:
+        return None
+    s = res.sets["right_of_way"]
+    start = res.slices["right_of_way"].start
+    edges = []
+    for samples, (edge, sl) in zip(s.edge_samples, _edge_slices(s).items()):
+        e_si, b_si = s.field.e_rms_v_per_m[sl], s.field.b_rms_t[sl]
+        ke, kb = int(np.argmax(e_si)), int(np.argmax(b_si))
+        values = {"E": e_si[ke], "B": b_si[kb]}  # resultants, as COMPLIANCE_QUANTITY
+        exposure = []
+        for t in limits:
+            index = float(values[t.quantity] / t.limit_si)
+            exposure.append({"level_id": t.level_id, "quantity": t.quantity, "exposure_index": index,
+                             "passes": bool(index <= 1.0)})
+        vx, vy = res.frame.to_request(samples.vertices_m[:, 0], samples.vertices_m[:, 1])
+        edges.append({
+            "edge": edge, "offset_m": float(samples.offset_m), "height_m": float(spec.height_m),
+            "n_points": int(sl.stop - sl.start), "length_m": samples.length_m,
+            "e_kv_m": float(v_per_m_to_kv_per_m(values["E"])), "b_ut": float(t_to_ut(values["B"])),
+            "e_location": _edge_location(res, start + sl.start + ke),
+            "b_location": _edge_location(res, start + sl.start + kb),
+            "exposure": exposure,
+            "geometry": {"type": "LineString", "coordinates": [[float(x), float(y)] for x, y in zip(vx, vy)]},
+        })
+    return {"left_m": spec.left_m, "right_m": spec.right_m, "step_m": spec.step_m, "height_m": spec.height_m,
+            "note": (f"Edges sampled every {spec.step_m:g} m along their whole length at {spec.height_m:g} m above "
+                     "ground; the values are the largest along each edge."),
+            "edges": edges}
+
+
+def _edge_location(res: RouteResult, index: int) -> dict[str, Any]:
+    loc = _where(res, index)
+    return {k: loc[k] for k in ("index", "x", "y", "chainage_m", "distance_m")}
+
+
 def _compliance(res: RouteResult, limits: list[catalogue.Threshold]) -> list[dict[str, Any]]:
     checks = evaluate_compliance(res.combined, limits, quantity_kind=COMPLIANCE_QUANTITY)
+    edges_evaluated = "right_of_way" in res.sets
+    edge_checks = None
+    if edges_evaluated:
+        edge_checks = evaluate_compliance(res.sets["right_of_way"].field, limits, quantity_kind=COMPLIANCE_QUANTITY)
+    edge_start = res.slices["right_of_way"].start if edges_evaluated else 0
     lateral = None
     if "lateral_profile" in res.sets:
         lp = res.sets["lateral_profile"]
@@ -135,11 +211,18 @@ def _compliance(res: RouteResult, limits: list[catalogue.Threshold]) -> list[dic
                                       quantity_kind=COMPLIANCE_QUANTITY)
     rows = []
     for k, c in enumerate(checks):
+        basis = basis_for(c.threshold, edges_evaluated)
+        index = c.max_index
+        if basis == "right_of_way_edges":
+            # judged where the level applies: on the edge samples only
+            c = edge_checks[k]
+            index = edge_start + c.max_index
         # compliance_row reads (offset, height) columns: give it (x, z) and replace the location below
-        row = compliance_row(c, res.combined.points_m[:, [0, 2]], basis_for(c.threshold, False))
+        row = compliance_row(c, res.combined.points_m[:, [0, 2]] if basis != "right_of_way_edges"
+                             else res.sets["right_of_way"].field.points_m[:, [0, 2]], basis)
         row.pop("max_offset_m", None)
         row.pop("max_height_m", None)
-        row["max_location"] = _where(res, c.max_index)
+        row["max_location"] = _where(res, index)
         if lateral is not None:
             row["distance_left_m"] = lateral[k].distance_left_m
             row["distance_right_m"] = lateral[k].distance_right_m
@@ -179,7 +262,8 @@ def build_route_report(request: RouteAssessmentRequest, *, max_points: int | Non
         ``kind`` ("route"), ``title``, ``reference``, ``outcome``, ``engine_version``,
         ``catalogue_version``, ``frequency_hz``, ``compliance_quantity``, ``input``,
         ``crs``, ``results``, ``zones``, ``maxima``, ``compliance``, ``segment_counts``,
-        ``assumptions``, ``cautions``.
+        ``assumptions``, ``cautions``, and ``right_of_way`` (:func:`right_of_way_block`)
+        when the request gives one.
 
     Raises
     ------
@@ -190,7 +274,7 @@ def build_route_report(request: RouteAssessmentRequest, *, max_points: int | Non
     res = evaluate_route(request.route, request.frequency_hz, request.evaluation, crs=request.crs,
                          soil_resistivity_ohm_m=request.soil_resistivity_ohm_m, max_points=max_points)
     compliance = _compliance(res, limits)
-    return {
+    report = {
         "kind": "route",
         "title": request.title,
         "reference": request.reference,
@@ -210,3 +294,7 @@ def build_route_report(request: RouteAssessmentRequest, *, max_points: int | Non
         "assumptions": list(res.assumptions),
         "cautions": list(CAUTIONS),
     }
+    edges = right_of_way_block(request, res, limits)
+    if edges is not None:
+        report["right_of_way"] = edges
+    return report

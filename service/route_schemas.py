@@ -3,8 +3,8 @@
 A route request is an assessment body (:class:`service.schemas.AssessmentBaseSchema`:
 title, reference, frequency, reference levels, custom limits) with ``route`` instead
 of ``cross_section`` and, instead of ``profile``/``points``, any combination of the
-evaluation sets ``path``, ``lateral_profile``, ``receptors``, ``grid`` (and ``zones``,
-contoured from the grid).  GeoJSON members follow RFC 7946: a path geometry is a
+evaluation sets ``path``, ``lateral_profile``, ``receptors``, ``grid``, ``right_of_way``
+(the two edges sampled along the whole route) and ``zones`` (contoured from the grid).  GeoJSON members follow RFC 7946: a path geometry is a
 ``LineString`` of at least two positions, receptors a ``FeatureCollection`` of
 ``Point`` features; positions are ``[x, y]`` (an optional third value, altitude,
 is accepted and ignored: heights come from ``height_m``); all numbers finite;
@@ -34,6 +34,7 @@ from models.route.evaluation import (
     Receptor,
     ZoneSet,
 )
+from models.route.right_of_way import DEFAULT_EDGE_HEIGHT_M, DEFAULT_EDGE_STEP_M, RightOfWaySet
 from models.route.types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, Support
 
 from .schemas import (
@@ -46,6 +47,7 @@ from .schemas import (
     CustomLimit,
     FiniteFloat,
     ProfileSchema,
+    RightOfWaySchema,
     VoltagePhasorSchema,
 )
 
@@ -299,6 +301,22 @@ class GridSchema(Schema):
         return GridSet(tuple(data["bbox"]), data["resolution_m"], data["height_m"])
 
 
+class RouteRightOfWaySchema(RightOfWaySchema):
+    """Right-of-way edges along a route: the cross-section's offsets plus sample spacing and height.
+
+    The cross-section member (:class:`service.schemas.RightOfWaySchema`) accepts only
+    ``left_m``/``right_m``: there the edges are two points of the section, evaluated at
+    the profile height.
+    """
+
+    step_m = FiniteFloat(load_default=DEFAULT_EDGE_STEP_M, validate=POSITIVE)
+    height_m = FiniteFloat(load_default=DEFAULT_EDGE_HEIGHT_M, validate=NON_NEGATIVE)
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> RightOfWaySet:
+        return RightOfWaySet(data["left_m"], data["right_m"], data["step_m"], data["height_m"])
+
+
 class ZoneThresholdField(fields.Field):
     """A zone threshold: a catalogue id (string) or ``{"id", "value", "unit"}`` (unit decides E or B)."""
 
@@ -361,6 +379,17 @@ def _path_length_estimate_m(path: PathSet, geographic: bool) -> float:
     return float(np.sum(np.hypot(dx, dy)) * _EARTH_RADIUS_M)
 
 
+def _route_length_estimate_m(route: Route, geographic: bool) -> float:
+    """Centre-line length [m]; in lon/lat by the local equirectangular scale (for the point-count check only)."""
+    xy = np.array([[s.x_m, s.y_m] for s in route.supports], dtype=float)
+    if not geographic:
+        return float(np.sum(np.hypot(*np.diff(xy, axis=0).T)))
+    xy = np.radians(xy)
+    dx = np.diff(xy[:, 0]) * np.cos(0.5 * (xy[1:, 1] + xy[:-1, 1]))
+    dy = np.diff(xy[:, 1])
+    return float(np.sum(np.hypot(dx, dy)) * _EARTH_RADIUS_M)
+
+
 def _grid_points_estimate(grid: GridSet, geographic: bool) -> float:
     minx, miny, maxx, maxy = grid.bbox
     if geographic:
@@ -381,6 +410,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     receptors = fields.Nested(ReceptorCollectionSchema)
     grid = fields.Nested(GridSchema)
     zones = fields.Nested(ZonesSchema)
+    right_of_way = fields.Nested(RouteRightOfWaySchema)
 
     def __init__(self, *, max_route_points: int = DEFAULT_MAX_ROUTE_POINTS, **kwargs: Any):
         super().__init__(**kwargs)
@@ -390,9 +420,9 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     def sets_and_size(self, data: dict[str, Any], **kwargs: Any) -> None:
         if "route" not in data:
             return  # reported by the field itself
-        if not any(k in data for k in ("path", "lateral_profile", "receptors", "grid")):
-            raise ValidationError("Give at least one evaluation set: path, lateral_profile, receptors or grid.",
-                                  field_name="path")
+        if not any(k in data for k in ("path", "lateral_profile", "receptors", "grid", "right_of_way")):
+            raise ValidationError("Give at least one evaluation set: path, lateral_profile, receptors, grid or "
+                                  "right_of_way.", field_name="path")
         if "zones" in data and "grid" not in data:
             raise ValidationError("Exposure zones are contoured from the grid evaluation set; add a grid.",
                                   field_name="zones")
@@ -428,6 +458,15 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             if counts["grid"] > cap:
                 raise ValidationError({"grid": {"resolution_m": [
                     f"The grid has about {counts['grid']:.0f} points; at most {cap} are allowed per request."]}})
+        if "right_of_way" in data:
+            row = data["right_of_way"]
+            # each edge is about as long as the centre line (mitres at angle supports add or take |offset| tan)
+            length = _route_length_estimate_m(route, geographic)
+            counts["right_of_way"] = 2 * (length / row.step_m + 2)
+            if counts["right_of_way"] > cap:
+                raise ValidationError({"right_of_way": {"step_m": [
+                    f"The right-of-way edges have about {counts['right_of_way']:.0f} points; at most {cap} are "
+                    "allowed per request."]}})
         total = sum(counts.values())
         if total > cap:
             largest = max(counts, key=counts.get)
@@ -455,7 +494,8 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> RouteAssessmentRequest:
         sets = EvaluationSets(path=data.get("path"), lateral_profile=data.get("lateral_profile"),
-                              receptors=data.get("receptors", ()), grid=data.get("grid"), zones=data.get("zones"))
+                              receptors=data.get("receptors", ()), grid=data.get("grid"), zones=data.get("zones"),
+                              right_of_way=data.get("right_of_way"))
         return RouteAssessmentRequest(
             title=data["title"], reference=data["reference"], frequency_hz=data["frequency_hz"],
             route=data["route"]["route"], crs=data["route"]["crs"], evaluation=sets,
@@ -560,6 +600,10 @@ def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
              "properties": {"id": r.id, "name": r.name, "height_m": r.height_m}} for r in ev.receptors]}
     if ev.grid is not None:
         body["grid"] = {"bbox": list(ev.grid.bbox), "resolution_m": ev.grid.resolution_m, "height_m": ev.grid.height_m}
+    if ev.right_of_way is not None:
+        row = ev.right_of_way
+        body["right_of_way"] = {"left_m": row.left_m, "right_m": row.right_m, "step_m": row.step_m,
+                                "height_m": row.height_m}
     if ev.zones is not None:
         body["zones"] = {"thresholds": [t if isinstance(t, str) else to_plain(t) for t in ev.zones.thresholds]}
     return body

@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import math
 import re
+from html.parser import HTMLParser
 
 import numpy as np
 import pytest
@@ -144,7 +145,11 @@ def test_right_of_way_of_wrong_type_is_422(app, client, value):
 
 @pytest.mark.parametrize("key, token", [("left_m", "NaN"), ("right_m", "Infinity"), ("left_m", "-Infinity")])
 def test_non_finite_edge_is_422(app, client, key, token):
-    body = small_body(right_of_way={"left_m": -30, "right_m": 30})
+    check_non_finite_member(app, client, small_body(right_of_way={"left_m": -30, "right_m": 30}), key, token)
+
+
+def check_non_finite_member(app, client, body: dict, key: str, token: str) -> None:
+    """POST ``body`` with ``right_of_way[key]`` written as the bare JSON token (NaN, Infinity): 422, nothing stored."""
     body["right_of_way"][key] = "__TOKEN__"
     raw = json.dumps(body).replace('"__TOKEN__"', token)
     response = client.post("/v1/assessments", data=raw, content_type="application/json")
@@ -209,41 +214,42 @@ def test_right_of_way_schema_names_match_the_document(spec):
     assert "right_of_way" in spec["components"]["schemas"]["AssessmentRequest"]["properties"]
 
 
+class EdgeTable(HTMLParser):
+    """Rows of the page's right-of-way edge table (``table#right-of-way-edges``), cell texts stripped."""
+
+    def __init__(self):
+        super().__init__()
+        self.inside, self.rows, self.cell = False, [], None
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "table" and ("id", "right-of-way-edges") in attrs:
+            self.inside = True
+        elif self.inside and tag == "tr":
+            self.rows.append([])
+        elif self.inside and tag in ("td", "th"):
+            self.cell = ""
+
+    def handle_endtag(self, tag):
+        if tag == "table":
+            self.inside = False
+        elif self.inside and tag in ("td", "th") and self.cell is not None:
+            self.rows[-1].append(self.cell.strip())
+            self.cell = None
+
+    def handle_data(self, data):
+        if self.cell is not None:
+            self.cell += data
+
+
 def test_html_report_tabulates_the_edge_values(client):
     # The printed page must carry the edge values themselves, not only the plot lines:
     # the numbers in the table are the JSON report's (4 significant digits, as in the page).
-    from html.parser import HTMLParser
-
     from service.reports import format_number
 
     created = client.post("/v1/assessments", json=with_row()).get_json()
     page = client.get(f"/v1/assessments/{created['id']}/report?format=html").get_data(as_text=True)
 
-    class Table(HTMLParser):
-        def __init__(self):
-            super().__init__()
-            self.inside, self.rows, self.cell = False, [], None
-
-        def handle_starttag(self, tag, attrs):
-            if tag == "table" and ("id", "right-of-way-edges") in attrs:
-                self.inside = True
-            elif self.inside and tag == "tr":
-                self.rows.append([])
-            elif self.inside and tag in ("td", "th"):
-                self.cell = ""
-
-        def handle_endtag(self, tag):
-            if tag == "table":
-                self.inside = False
-            elif self.inside and tag in ("td", "th") and self.cell is not None:
-                self.rows[-1].append(self.cell.strip())
-                self.cell = None
-
-        def handle_data(self, data):
-            if self.cell is not None:
-                self.cell += data
-
-    parser = Table()
+    parser = EdgeTable()
     parser.feed(page)
     header, *rows = parser.rows
     assert header[:5] == ["Edge", "Offset (m)", "Height (m)", "E (kV/m)", "B (µT)"]
