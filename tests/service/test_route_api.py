@@ -153,6 +153,10 @@ def test_demo_route_projected_and_lon_lat_through_the_api(app, client):
     # 1e-8 deg, about 1 mm: relative field differences ~ 2 mm / distance stay below 2e-4)
     for a, b in zip(reports[False]["results"]["receptors"], reports[True]["results"]["receptors"]):
         assert b["b_ut"] == pytest.approx(a["b_ut"], rel=2e-4) and b["e_kv_m"] == pytest.approx(a["e_kv_m"], rel=2e-4)
+    # the demo's right-of-way edges: same largest values in both (edges 20 m from the centre line)
+    for a, b in zip(reports[False]["right_of_way"]["edges"], reports[True]["right_of_way"]["edges"]):
+        assert a["edge"] == b["edge"] and a["n_points"] == b["n_points"]
+        assert b["b_ut"] == pytest.approx(a["b_ut"], rel=2e-4) and b["e_kv_m"] == pytest.approx(a["e_kv_m"], rel=2e-4)
     assert stored_count(app) == 2
 
 
