@@ -657,7 +657,17 @@ def _load_cases(report: Mapping[str, Any]) -> dict[str, Any] | None:
                       "e": format_number((maxima.get("e") or {}).get("value_kv_m")),
                       "b": format_number((maxima.get("b") or {}).get("value_ut"))})
     figure = plots.load_cases_svg(series_b, thresholds=_thresholds_for_plot(report, "B")) if series_b else None
-    return {"figure": figure, "table": table}
+    out: dict[str, Any] = {"figure": figure, "table": table}
+    summary = report.get("load_case_summary")
+    if isinstance(summary, Mapping):
+        labels = {str(c.get("id")): str(c.get("label") or c.get("id")) for c in cases}
+        out["summary"] = {"cases": summary.get("cases", len(cases)), "outcome": summary.get("outcome"),
+                          "failing": [labels.get(str(i), str(i)) for i in summary.get("failing_cases", ())]}
+        out["governing"] = [{"level_id": g.get("level_id"), "quantity": g.get("quantity"),
+                             "case": labels.get(str(g.get("case_id")), str(g.get("case_id"))),
+                             "exposure_index": format_number(g.get("exposure_index"), 3),
+                             "passes": bool(g.get("passes"))} for g in summary.get("governing", ())]
+    return out
 
 
 def coordinate_text(value: Any) -> str:

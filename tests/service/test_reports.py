@@ -389,3 +389,11 @@ def test_demo_load_cases_come_from_the_service(report):
     base, peak = report["load_cases"][0], report["load_cases"][1]
     assert peak["maxima"]["b"]["value_ut"] == pytest.approx(1.8 * base["maxima"]["b"]["value_ut"], rel=1e-12)
     assert ctx["cases"]["table"][1]["b"] == reports.format_number(peak["maxima"]["b"]["value_ut"])
+    # the summary: the 0.4 µT planning threshold fails in every case; the governing case for B
+    # is the one with the largest current (west carrying 2000 A or 1.8 x 1000 A on both)
+    assert ctx["cases"]["summary"]["outcome"] == report["load_case_summary"]["outcome"] == "fail"
+    assert ctx["cases"]["summary"]["failing"] == labels
+    page = reports.render_html(report)
+    assert 'id="load-case-outcome"' in page and "Governing load case per threshold" in page
+    governing = {(g["level_id"], g["quantity"]): g["case_id"] for g in report["load_case_summary"]["governing"]}
+    assert governing[("planning-0.4ut", "B")] in ("winter-peak", "east-out")
