@@ -1,4 +1,9 @@
-"""Load cases: the same cross-section under other loading (what-if studies).
+"""Load cases: the same line under other loading (what-if studies).
+
+Works on a cross-section (:class:`models.geometry.CrossSection`) and on a route
+(:class:`models.route.types.Route`): both hold circuits with ``current_a`` and
+``voltage_kv``, conductors with an optional ``current`` phasor, and earth wires.
+
 
 A load case changes how a line is loaded, never its geometry.  Per circuit it can
 set the balanced current ``current_a`` and the line-to-line voltage ``voltage_kv``.
@@ -20,6 +25,7 @@ from collections.abc import Mapping
 
 from .errors import LoadingError, must_be
 from .geometry import CrossSection, CurrentPhasor
+from .route.types import Route
 
 __all__ = ["apply_loading"]
 
@@ -36,7 +42,7 @@ def _scaled(current: CurrentPhasor | None, scale: float) -> CurrentPhasor | None
 
 
 def apply_loading(
-    section: CrossSection,
+    section: CrossSection | Route,
     *,
     currents_a: Mapping[str, float] | None = None,
     voltages_kv: Mapping[str, float] | None = None,
@@ -47,7 +53,7 @@ def apply_loading(
 
     Parameters
     ----------
-    section : CrossSection
+    section : CrossSection or Route
         The base case.
     currents_a, voltages_kv : mapping of circuit id to value, optional
         New balanced current [A] / line-to-line voltage [kV] of those circuits.
@@ -58,8 +64,8 @@ def apply_loading(
 
     Returns
     -------
-    CrossSection
-        A new section; ``section`` is unchanged.
+    CrossSection or Route
+        A new one of the same type; ``section`` is unchanged.
 
     Raises
     ------
@@ -86,7 +92,9 @@ def apply_loading(
     for c in section.circuits:
         current = new_i.get(("currents_a", c.id), c.current_a)
         voltage = new_i.get(("voltages_kv", c.id), c.voltage_kv)
-        conductors = tuple(dataclasses.replace(k, current=_scaled(k.current, scale)) for k in c.conductors)
+        conductors = tuple(dataclasses.replace(k, current=_scaled(getattr(k, "current", None), scale))
+                           if getattr(k, "current", None) is not None else k for k in c.conductors)
         circuits.append(dataclasses.replace(c, current_a=current * scale, voltage_kv=voltage, conductors=conductors))
-    earth_wires = tuple(dataclasses.replace(w, current=_scaled(w.current, scale)) for w in section.earth_wires)
+    earth_wires = tuple(dataclasses.replace(w, current=_scaled(w.current, scale)) if w.current is not None else w
+                        for w in section.earth_wires)
     return dataclasses.replace(section, circuits=tuple(circuits), earth_wires=earth_wires)

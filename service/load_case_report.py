@@ -1,4 +1,4 @@
-"""The ``load_cases`` and ``load_case_summary`` members of a cross-section report.
+"""The ``load_cases`` and ``load_case_summary`` members of a cross-section or route report.
 
 Each load case is the request's cross-section under other loading
 (:func:`models.load_cases.apply_loading`), evaluated at the same points and judged
@@ -27,7 +27,7 @@ from .schemas import AssessmentRequest
 BASE_LABEL = "As requested"
 
 
-def _loading(section: CrossSection, scale: float) -> dict[str, Any]:
+def _loading(section: CrossSection | Any, scale: float) -> dict[str, Any]:
     return {"current_scale": scale,
             "currents_a": {c.id: c.current_a for c in section.circuits},
             "voltages_kv": {c.id: c.voltage_kv for c in section.circuits}}
@@ -74,13 +74,59 @@ def load_case_blocks(request: AssessmentRequest, limits: list[catalogue.Threshol
                       "outcome": "pass" if all(r["passes"] for r in rows) else "fail",
                       "maxima": maxima(result), "compliance": [_compact(r) for r in rows],
                       "points": _points(result)})
+    return cases, _summary(cases, base_compliance)
+
+
+def _summary(cases: list[dict[str, Any]], base_compliance: list[dict[str, Any]]) -> dict[str, Any]:
+    """Outcome over every case, the failing ones, and per threshold the governing case."""
     governing = []
     for k, row in enumerate(base_compliance):
         worst = max(cases, key=lambda c: c["compliance"][k]["exposure_index"])
         entry = worst["compliance"][k]
         governing.append({"level_id": row["level_id"], "quantity": row["quantity"], "case_id": worst["id"],
                           "exposure_index": entry["exposure_index"], "passes": entry["passes"]})
-    summary = {"outcome": "pass" if all(c["outcome"] == "pass" for c in cases) else "fail",
-               "cases": len(cases), "failing_cases": [c["id"] for c in cases if c["outcome"] == "fail"],
-               "governing": governing}
-    return cases, summary
+    return {"outcome": "pass" if all(c["outcome"] == "pass" for c in cases) else "fail",
+            "cases": len(cases), "failing_cases": [c["id"] for c in cases if c["outcome"] == "fail"],
+            "governing": governing}
+
+
+def _receptor_rows(res: Any) -> list[dict[str, Any]]:
+    s = res.sets.get("receptors")
+    if s is None:
+        return []
+    e, b = v_per_m_to_kv_per_m(s.field.e_rms_v_per_m), t_to_ut(s.field.b_rms_t)
+    return [{"id": i, "name": n, "e_kv_m": float(ev), "b_ut": float(bv)}
+            for i, n, ev, bv in zip(s.ids, s.names, np.asarray(e).tolist(), np.asarray(b).tolist())]
+
+
+def route_load_case_blocks(request: Any, limits: list[catalogue.Threshold], base_compliance: list[dict[str, Any]],
+                           base_res: Any, *, max_points: int | None = None) -> tuple[list, dict]:
+    """(``load_cases``, ``load_case_summary``) of a route request with ``load_cases``.
+
+    Every case is the route under other loading, evaluated on the same sets (exposure zones
+    only for the base case) with the same thresholds and compliance bases.  A case gives its
+    loading, outcome, maxima, compliance and the fields at the receptors (the point lists
+    of the other sets are the base case's only).
+
+    :raise models.errors.EngineInputError: a load case the route cannot take (field named).
+    """
+    from models.route.evaluate import evaluate_route
+
+    from .route_assessment import _compliance, route_maxima
+
+    sets = dataclasses.replace(request.evaluation, zones=None)
+    cases = [{"id": "base", "label": BASE_LABEL, "loading": _loading(request.route, 1.0),
+              "outcome": "pass" if all(c["passes"] for c in base_compliance) else "fail",
+              "maxima": route_maxima(base_res), "compliance": [_compact(c) for c in base_compliance],
+              "receptors": _receptor_rows(base_res)}]
+    for i, case in enumerate(request.load_cases or ()):
+        route = apply_loading(request.route, currents_a=case.currents_a, voltages_kv=case.voltages_kv,
+                              current_scale=case.current_scale, field=f"load_cases[{i}]")
+        res = evaluate_route(route, request.frequency_hz, sets, crs=request.crs,
+                             soil_resistivity_ohm_m=request.soil_resistivity_ohm_m, max_points=max_points)
+        rows = _compliance(res, limits)
+        cases.append({"id": case.id, "label": case.label or case.id, "loading": _loading(route, case.current_scale),
+                      "outcome": "pass" if all(r["passes"] for r in rows) else "fail",
+                      "maxima": route_maxima(res), "compliance": [_compact(r) for r in rows],
+                      "receptors": _receptor_rows(res)})
+    return cases, _summary(cases, base_compliance)

@@ -262,8 +262,9 @@ def build_route_report(request: RouteAssessmentRequest, *, max_points: int | Non
         ``kind`` ("route"), ``title``, ``reference``, ``outcome``, ``engine_version``,
         ``catalogue_version``, ``frequency_hz``, ``compliance_quantity``, ``input``,
         ``crs``, ``results``, ``zones``, ``maxima``, ``compliance``, ``segment_counts``,
-        ``assumptions``, ``cautions``, and ``right_of_way`` (:func:`right_of_way_block`)
-        when the request gives one.
+        ``assumptions``, ``cautions``, ``right_of_way`` (:func:`right_of_way_block`)
+        when the request gives one, and ``load_cases`` with ``load_case_summary`` when it
+        gives load cases (:func:`service.load_case_report.route_load_case_blocks`).
 
     Raises
     ------
@@ -297,4 +298,9 @@ def build_route_report(request: RouteAssessmentRequest, *, max_points: int | Non
     edges = right_of_way_block(request, res, limits)
     if edges is not None:
         report["right_of_way"] = edges
+    if request.load_cases:
+        from .load_case_report import route_load_case_blocks
+
+        report["load_cases"], report["load_case_summary"] = route_load_case_blocks(
+            request, limits, compliance, res, max_points=max_points)
     return report

@@ -45,10 +45,15 @@ from .schemas import (
     CircuitSchema,
     CurrentPhasorSchema,
     CustomLimit,
+    LOAD_CASE_POINT_FACTOR,
+    MAX_LOAD_CASES,
     FiniteFloat,
+    LoadCase,
+    LoadCaseSchema,
     ProfileSchema,
     RightOfWaySchema,
     VoltagePhasorSchema,
+    check_load_cases,
 )
 
 MAX_SUPPORTS = 200
@@ -367,6 +372,7 @@ class RouteAssessmentRequest:
     reference_levels: tuple[str, ...] = ()
     custom_limits: tuple[CustomLimit, ...] = ()
     soil_resistivity_ohm_m: float | None = None
+    load_cases: tuple[LoadCase, ...] | None = None
 
 
 def _path_length_estimate_m(path: PathSet, geographic: bool) -> float:
@@ -411,6 +417,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     grid = fields.Nested(GridSchema)
     zones = fields.Nested(ZonesSchema)
     right_of_way = fields.Nested(RouteRightOfWaySchema)
+    load_cases = fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
 
     def __init__(self, *, max_route_points: int = DEFAULT_MAX_ROUTE_POINTS, **kwargs: Any):
         super().__init__(**kwargs)
@@ -472,6 +479,9 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             largest = max(counts, key=counts.get)
             raise ValidationError({largest: [f"The evaluation sets together have about {total:.0f} points; at most "
                                              f"{cap} are allowed per request."]})
+        if data.get("load_cases"):
+            check_load_cases(data["load_cases"], [c.id for c in route.circuits], total,
+                             LOAD_CASE_POINT_FACTOR * cap)
 
     @staticmethod
     def _check_lon_lat(data: dict[str, Any]) -> None:
@@ -500,7 +510,8 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             title=data["title"], reference=data["reference"], frequency_hz=data["frequency_hz"],
             route=data["route"]["route"], crs=data["route"]["crs"], evaluation=sets,
             reference_levels=tuple(data["reference_levels"]), custom_limits=tuple(data["custom_limits"]),
-            soil_resistivity_ohm_m=data.get("soil_resistivity_ohm_m"))
+            soil_resistivity_ohm_m=data.get("soil_resistivity_ohm_m"),
+            load_cases=tuple(data["load_cases"]) if "load_cases" in data else None)
 
 
 def _nest(where: dict, message: str) -> dict:
@@ -606,4 +617,6 @@ def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
                                 "height_m": row.height_m}
     if ev.zones is not None:
         body["zones"] = {"thresholds": [t if isinstance(t, str) else to_plain(t) for t in ev.zones.thresholds]}
+    if req.load_cases:
+        body["load_cases"] = to_plain(list(req.load_cases))
     return body

@@ -267,6 +267,31 @@ class LoadCaseSchema(Schema):
         return LoadCase(**data)
 
 
+def check_load_cases(cases: list[LoadCase], circuit_ids: list[str], n_points: float, cap: float) -> None:
+    """Load cases fit the request: unique ids, known circuits, (cases + 1) x points <= ``cap``.
+
+    :raise marshmallow.ValidationError: naming ``load_cases/<i>/id``, ``.../currents_a/<circuit>``,
+        ``.../voltages_kv/<circuit>`` or ``load_cases``.
+    """
+    errors: dict[int, Any] = {}
+    seen: set[str] = set()
+    for i, case in enumerate(cases):
+        if case.id in seen:
+            errors.setdefault(i, {})["id"] = [f"Load case id {case.id!r} is used twice."]
+        seen.add(case.id)
+        for name in ("currents_a", "voltages_kv"):
+            unknown = {cid: [f"No circuit {cid!r} in the request (circuits: {', '.join(circuit_ids)})."]
+                       for cid in (getattr(case, name) or {}) if cid not in circuit_ids}
+            if unknown:
+                errors.setdefault(i, {})[name] = unknown
+    if errors:
+        raise ValidationError({"load_cases": errors})
+    if (len(cases) + 1) * n_points > cap:
+        raise ValidationError(f"{len(cases) + 1} cases (with the base case) x {n_points:.0f} points exceed "
+                              f"{cap:.0f} evaluated points; use fewer load cases or fewer points.",
+                              field_name="load_cases")
+
+
 # --------------------------------------------------------------------------- limits and the request
 
 
@@ -354,30 +379,12 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
 
     @validates_schema
     def load_cases_fit(self, data: dict[str, Any], **kwargs: Any) -> None:
-        cases = data.get("load_cases")
-        if not cases or "cross_section" not in data:
+        if not data.get("load_cases") or "cross_section" not in data:
             return
-        ids = [c.id for c in data["cross_section"].circuits]
-        errors: dict[int, Any] = {}
-        seen: set[str] = set()
-        for i, case in enumerate(cases):
-            if case.id in seen:
-                errors.setdefault(i, {})["id"] = [f"Load case id {case.id!r} is used twice."]
-            seen.add(case.id)
-            for name in ("currents_a", "voltages_kv"):
-                unknown = {cid: [f"No circuit {cid!r} in the cross-section (circuits: {', '.join(ids)})."]
-                           for cid in (getattr(case, name) or {}) if cid not in ids}
-                if unknown:
-                    errors.setdefault(i, {})[name] = unknown
-        if errors:
-            raise ValidationError({"load_cases": errors})
         n = (profile_point_count(data["profile"].from_m, data["profile"].to_m, data["profile"].step_m)
              if "profile" in data else len(data.get("points", ())))
-        cap = LOAD_CASE_POINT_FACTOR * self.max_points
-        if (len(cases) + 1) * n > cap:
-            raise ValidationError(f"{len(cases) + 1} cases (with the base case) x {n:.0f} points exceed "
-                                  f"{cap} evaluated points; use fewer load cases or a coarser profile.",
-                                  field_name="load_cases")
+        check_load_cases(data["load_cases"], [c.id for c in data["cross_section"].circuits], n,
+                         LOAD_CASE_POINT_FACTOR * self.max_points)
 
     @validates_schema
     def points_and_size(self, data: dict[str, Any], **kwargs: Any) -> None:

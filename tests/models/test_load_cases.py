@@ -90,3 +90,24 @@ def test_bad_loading_names_the_field(kwargs, field_name):
     with pytest.raises(LoadingError) as info:
         apply_loading(two_circuits(), field="load_cases[0]", **kwargs)
     assert info.value.field == field_name
+
+
+def test_route_loading_reaches_the_3d_sources():
+    # The same function on a route: the discretised segments carry the new currents
+    # (B is linear in them, Biot-Savart), the wires the new voltages.
+    from models.route.discretise import discretise_route
+    from models.route.types import Route, RouteCircuit, RouteConductor, Support
+
+    route = Route((Support("a", 0.0, 0.0), Support("b", 300.0, 0.0)),
+                  (RouteCircuit("c1", "overhead", 132.0, 500.0,
+                                tuple(RouteConductor(p, x, 15.0, 3.0) for p, x in
+                                      zip(("L1", "L2", "L3"), (-4.0, 0.0, 4.0))), Bundle(0.03)),))
+    changed = apply_loading(route, currents_a={"c1": 800.0}, voltages_kv={"c1": 150.0}, current_scale=0.5)
+    assert isinstance(changed, Route) and changed.supports == route.supports
+    base, new = discretise_route(route, tolerance_m=0.05), discretise_route(changed, tolerance_m=0.05)
+    np.testing.assert_array_equal(new.start_m, base.start_m)
+    np.testing.assert_allclose(new.current_a, base.current_a * 400.0 / 500.0, rtol=1e-15)
+    np.testing.assert_allclose(new.wire_voltage_v, base.wire_voltage_v * 150.0 / 132.0, rtol=1e-15)
+    with pytest.raises(LoadingError) as info:
+        apply_loading(route, currents_a={"c2": 1.0}, field="load_cases[3]")
+    assert info.value.field == "load_cases[3].currents_a.c2"

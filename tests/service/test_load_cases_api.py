@@ -110,3 +110,42 @@ def test_too_many_case_points_is_422(client):
     r = client.post("/v1/evaluate", json=body)
     assert r.status_code == 422
     assert "/load_cases" in [e["pointer"] for e in r.get_json()["errors"]]
+
+
+# --------------------------------------------------------------------------- routes
+
+
+def test_route_load_cases_match_separate_route_requests(client, spec):
+    from .test_route_api import small_route_body
+
+    body = small_route_body(load_cases=[{"id": "peak", "label": "Peak", "currents_a": {"c1": 1500}}])
+    response = client.post("/v1/evaluate", json=body)
+    check_response(spec, response)
+    report = response.get_json()
+    base, peak = report["load_cases"]
+    assert base["id"] == "base" and base["maxima"] == report["maxima"]
+    separate_body = small_route_body()
+    separate_body["route"]["circuits"][0]["current_a"] = 1500
+    separate = client.post("/v1/evaluate", json=separate_body).get_json()
+    assert peak["maxima"]["b"]["value_ut"] == pytest.approx(separate["maxima"]["b"]["value_ut"], rel=1e-12)
+    assert peak["maxima"]["e"]["value_kv_m"] == pytest.approx(separate["maxima"]["e"]["value_kv_m"], rel=1e-12)
+    assert [r["b_ut"] for r in peak["receptors"]] == pytest.approx(
+        [r["b_ut"] for r in separate["results"]["receptors"]], rel=1e-12)
+    # superposition: three times the current, three times B at every receptor (the earth wire carries none)
+    assert [r["b_ut"] for r in peak["receptors"]] == pytest.approx([3 * r["b_ut"] for r in base["receptors"]],
+                                                                   rel=1e-9)
+    assert report["load_case_summary"]["cases"] == 2
+    created = client.post("/v1/assessments", json=body)
+    assert created.status_code == 201
+    assert [c["id"] for c in created.get_json()["input"]["load_cases"]] == ["peak"]
+    assert client.post(created.headers["Location"] + "/verify").get_json()["verdict"] == "match"
+
+
+def test_route_load_case_with_unknown_circuit_is_422(app, client):
+    from .test_route_api import small_route_body
+
+    before = stored_count(app)
+    r = client.post("/v1/assessments", json=small_route_body(load_cases=[{"id": "x", "currents_a": {"zz": 1}}]))
+    assert r.status_code == 422
+    assert "/load_cases/0/currents_a/zz" in [e["pointer"] for e in r.get_json()["errors"]]
+    assert stored_count(app) == before
