@@ -20,16 +20,13 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     :param config: overrides, e.g. ``{"TESTING": True, "DATABASE_URL": "sqlite://"}``.
     :raise ValueError: on a setting the service cannot run with.
+    :raise service.schema_migrations.SchemaStateError: on a database schema it cannot use.
     """
     from . import config as settings
     from . import errors, storage
 
     app = Flask(__name__, instance_relative_config=True)
-    app.config.from_mapping(settings.DEFAULTS)
-    app.config.from_prefixed_env(settings.ENV_PREFIX)
-    if config:
-        app.config.from_mapping(settings.strip_prefix(config))
-    settings.check(app.config)
+    settings.load(app.config, config)
     app.logger.setLevel(str(app.config["LOG_LEVEL"]).upper())
     app.json.sort_keys = False  # reports keep the order they were built in
 

@@ -15,7 +15,10 @@ Nothing here reads the environment at import time.
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from flask import Config
 
 ENV_PREFIX = "EMF"
 
@@ -36,8 +39,9 @@ DEFAULTS: dict[str, Any] = {
     "PAGE_SIZE_MAX": 100,
     # Log level of the application logger (DEBUG, INFO, WARNING, ERROR).
     "LOG_LEVEL": "INFO",
-    # Create tables at start-up (set false when the schema is managed elsewhere).
-    "CREATE_TABLES": True,
+    # Apply the schema migrations (alembic upgrade head) at start-up, under a lock.  When
+    # false, start-up refuses a database that is not at head (run `python -m service.migrate upgrade`).
+    "MIGRATE_ON_START": True,
     # Compile (or load from numba's cache) the engine kernels at start-up, so the first
     # request of each worker does not pay for it.
     "WARM_UP_ENGINE": True,
@@ -53,7 +57,7 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_PAGE_SIZE_DEFAULT": "default page size of the assessment list",
     "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
     "EMF_LOG_LEVEL": "application log level",
-    "EMF_CREATE_TABLES": "create missing tables at start-up (true/false)",
+    "EMF_MIGRATE_ON_START": "apply the schema migrations at start-up (true/false)",
     "EMF_WARM_UP_ENGINE": "compile the engine kernels at start-up (true/false)",
 }
 
@@ -68,6 +72,15 @@ def strip_prefix(overrides: Mapping[str, Any]) -> dict[str, Any]:
     return {(k[len(prefix):] if k.startswith(prefix) else k): v for k, v in overrides.items()}
 
 
+def load(config: Config, overrides: Mapping[str, Any] | None = None) -> None:
+    """Fill ``config`` in the order of precedence above, then :func:`check` it."""
+    config.from_mapping(DEFAULTS)
+    config.from_prefixed_env(ENV_PREFIX)
+    if overrides:
+        config.from_mapping(strip_prefix(overrides))
+    check(config)
+
+
 def check(config: Mapping[str, Any]) -> None:
     """Fail fast on values the service cannot run with.
 
@@ -79,6 +92,12 @@ def check(config: Mapping[str, Any]) -> None:
             raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")
     if config["PAGE_SIZE_DEFAULT"] > config["PAGE_SIZE_MAX"]:
         raise ValueError("Setting PAGE_SIZE_DEFAULT must not exceed PAGE_SIZE_MAX.")
+    if not isinstance(config.get("MIGRATE_ON_START"), bool):
+        raise ValueError("Setting MIGRATE_ON_START must be true or false; "
+                         f"instead received {config.get('MIGRATE_ON_START')!r}.")
+    if "CREATE_TABLES" in config and config["CREATE_TABLES"] != config["MIGRATE_ON_START"]:
+        raise ValueError("Setting CREATE_TABLES was replaced by MIGRATE_ON_START (schema migrations); "
+                         f"set EMF_MIGRATE_ON_START instead of EMF_CREATE_TABLES={config['CREATE_TABLES']!r}.")
     url = config.get("DATABASE_URL")
     if url is not None and not isinstance(url, str):
         raise ValueError(f"Setting DATABASE_URL must be a string; instead received {url!r}.")

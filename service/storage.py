@@ -3,7 +3,9 @@
 * :func:`init_app` builds one engine and ``sessionmaker`` per application (so per
   gunicorn worker) from ``DATABASE_URL``; the default is a SQLite file in the
   Flask instance folder.  SQLite connections get WAL, a busy timeout and foreign
-  keys via a ``connect`` event.
+  keys via a ``connect`` event.  The schema is versioned: :func:`create_schema` runs
+  the alembic migrations of ``service/migrations`` (:mod:`service.schema_migrations`);
+  a change to the models below needs a new revision there (DEVELOPERS.md).
 * The request owns the session: :func:`get_session` gives the one session of the
   current request (closed on teardown); views wrap their work in
   ``with session.begin():``.  Functions here take the session first and never commit.
@@ -25,6 +27,7 @@ import base64
 import hashlib
 import json
 import os
+import sqlite3
 import time
 import uuid
 from collections.abc import Iterator, Mapping
@@ -50,7 +53,6 @@ from sqlalchemy import (
     text,
     update,
 )
-from sqlalchemy.exc import IntegrityError, OperationalError
 from sqlalchemy.orm import DeclarativeBase, Mapped, Session, mapped_column, sessionmaker
 from sqlalchemy.pool import StaticPool
 
@@ -59,7 +61,7 @@ GENESIS_DIGEST = "0" * 64
 
 EXTENSION_KEY = "emf_storage"
 SQLITE_FILENAME = "emf-assess.sqlite3"
-_PG_INIT_LOCK_KEY = 0x454D46  # "EMF": serialises table creation between workers
+_WAL_ATTEMPTS = 20  # about 4 s of waiting in all
 
 
 class UTCDateTime(TypeDecorator[datetime]):
@@ -351,7 +353,16 @@ def _sqlite_pragmas(dbapi_connection: Any, connection_record: Any) -> None:
     cursor = dbapi_connection.cursor()
     cursor.execute("PRAGMA busy_timeout = 15000")
     cursor.execute("PRAGMA foreign_keys = ON")
-    cursor.execute("PRAGMA journal_mode = WAL")
+    # Switching a new file to WAL needs an exclusive lock and SQLite does not wait for it
+    # (no busy handler), so a second worker connecting meanwhile is told "locked": retry.
+    for attempt in range(_WAL_ATTEMPTS):
+        try:
+            cursor.execute("PRAGMA journal_mode = WAL")
+            break
+        except sqlite3.OperationalError:
+            if attempt == _WAL_ATTEMPTS - 1:
+                raise
+            time.sleep(0.02 * (attempt + 1))
     cursor.execute("PRAGMA synchronous = NORMAL")
     cursor.close()
 
@@ -368,22 +379,15 @@ def make_engine(url: str) -> Engine:
     return create_engine(url, pool_pre_ping=True)
 
 
-def create_schema(engine: Engine, attempts: int = 5) -> None:
-    """Create missing tables and the chain-head row; safe when several workers start together."""
-    for attempt in range(attempts):
-        try:
-            with engine.begin() as conn:
-                if conn.dialect.name == "postgresql":
-                    conn.execute(text("SELECT pg_advisory_xact_lock(:key)"), {"key": _PG_INIT_LOCK_KEY})
-                Base.metadata.create_all(conn)
-                if conn.execute(select(ChainHead.id).where(ChainHead.id == 1)).first() is None:
-                    conn.execute(ChainHead.__table__.insert().values(id=1, sequence=0, digest=GENESIS_DIGEST))
-            return
-        except (IntegrityError, OperationalError):
-            # Another worker created the same table or row between our check and our write.
-            if attempt == attempts - 1:
-                raise
-            time.sleep(0.05 * (attempt + 1))
+def create_schema(engine: Engine) -> tuple[str, str]:
+    """Bring the database to this release's schema (alembic ``upgrade head``); safe when
+    several workers or instances start together (:func:`service.schema_migrations.upgrade`).
+
+    :return: the schema revision before and after, in words.
+    """
+    from . import schema_migrations
+
+    return schema_migrations.upgrade(engine)
 
 
 @dataclass
@@ -395,10 +399,24 @@ class Storage:
 
 
 def init_app(app: Flask) -> None:
-    """Build the engine and session factory, create tables, close the request session on teardown."""
+    """Build the engine and session factory, migrate (or check) the schema, close the request session on teardown.
+
+    :raise service.schema_migrations.SchemaStateError: the database is at a revision this
+        release cannot use (newer, or not at head while ``MIGRATE_ON_START`` is false).
+    """
+    from . import schema_migrations
+
     engine = make_engine(database_url(app))
-    if app.config.get("CREATE_TABLES", True):
-        create_schema(engine)
+    try:
+        if app.config["MIGRATE_ON_START"]:
+            before, after = create_schema(engine)
+            if before != after:
+                app.logger.info("Database schema migrated from %s to %s.", before, after)
+        else:
+            schema_migrations.require_head(engine)
+    except BaseException:
+        engine.dispose()
+        raise
     app.extensions[EXTENSION_KEY] = Storage(engine, sessionmaker(engine, expire_on_commit=False))
     app.teardown_appcontext(_close_session)
 

@@ -63,19 +63,25 @@ def postgres_schema_url() -> Iterator[str]:
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
 def db_url(request: pytest.FixtureRequest, tmp_path) -> Iterator[str]:
-    """A database URL with empty tables: a SQLite file, or a PostgreSQL schema."""
+    """A database URL with no tables: a new SQLite file, or an emptied PostgreSQL schema."""
     if request.param == "sqlite":
         yield "sqlite:///" + str(tmp_path / "test.sqlite3")
         return
     url = request.getfixturevalue("postgres_schema_url")
-    from sqlalchemy import create_engine
+    drop_service_tables(url)
+    yield url
+    drop_service_tables(url)
 
+
+def drop_service_tables(url: str) -> None:
+    """Drop the service's tables and alembic's version table (the schema itself stays)."""
+    from sqlalchemy import create_engine, text
+
+    from service.schema_migrations import VERSION_TABLE
     from service.storage import Base
 
     engine = create_engine(url)
     Base.metadata.drop_all(engine)
-    engine.dispose()
-    yield url
-    engine = create_engine(url)
-    Base.metadata.drop_all(engine)
+    with engine.begin() as conn:
+        conn.execute(text(f"DROP TABLE IF EXISTS {VERSION_TABLE}"))
     engine.dispose()
