@@ -45,6 +45,14 @@ def _compact(row: dict[str, Any]) -> dict[str, Any]:
     return {k: row[k] for k in keep if k in row}
 
 
+def _entry(case_id: str, label: str, line: Any, scale: float, rows: list[dict[str, Any]],
+           maxima: dict[str, Any], **fields: Any) -> dict[str, Any]:
+    """One ``load_cases`` entry: loading, outcome, maxima, compact compliance, then ``fields``."""
+    return {"id": case_id, "label": label, "loading": _loading(line, scale),
+            "outcome": "pass" if all(r["passes"] for r in rows) else "fail",
+            "maxima": maxima, "compliance": [_compact(r) for r in rows], **fields}
+
+
 def load_case_blocks(request: AssessmentRequest, limits: list[catalogue.Threshold],
                      base_compliance: list[dict[str, Any]], base_result: FieldResult) -> tuple[list, dict]:
     """(``load_cases``, ``load_case_summary``) for a request with ``load_cases``.
@@ -59,10 +67,8 @@ def load_case_blocks(request: AssessmentRequest, limits: list[catalogue.Threshol
 
     offsets = base_result.points_m[:, 0]
     lateral = offsets if request.profile is not None else None
-    cases = [{"id": "base", "label": BASE_LABEL, "loading": _loading(request.cross_section, 1.0),
-              "outcome": "pass" if all(c["passes"] for c in base_compliance) else "fail",
-              "maxima": maxima(base_result), "compliance": [_compact(c) for c in base_compliance],
-              "points": _points(base_result)}]
+    cases = [_entry("base", BASE_LABEL, request.cross_section, 1.0, base_compliance, maxima(base_result),
+                    points=_points(base_result))]
     for i, case in enumerate(request.load_cases or ()):
         section = apply_loading(request.cross_section, currents_a=case.currents_a, voltages_kv=case.voltages_kv,
                                 current_scale=case.current_scale, field=f"load_cases[{i}]")
@@ -70,10 +76,8 @@ def load_case_blocks(request: AssessmentRequest, limits: list[catalogue.Threshol
         result = _evaluate(variant, offsets, base_result.points_m[:, 1])
         checks = evaluate_compliance(result, limits, lateral_offset_m=lateral, quantity_kind=COMPLIANCE_QUANTITY)
         rows = _compliance_rows(checks, result, edge_fields(variant))
-        cases.append({"id": case.id, "label": case.label or case.id, "loading": _loading(section, case.current_scale),
-                      "outcome": "pass" if all(r["passes"] for r in rows) else "fail",
-                      "maxima": maxima(result), "compliance": [_compact(r) for r in rows],
-                      "points": _points(result)})
+        cases.append(_entry(case.id, case.label or case.id, section, case.current_scale, rows, maxima(result),
+                            points=_points(result)))
     return cases, _summary(cases, base_compliance)
 
 
@@ -115,18 +119,14 @@ def route_load_case_blocks(request: Any, limits: list[catalogue.Threshold], base
     from .route_assessment import _compliance, route_maxima
 
     sets = dataclasses.replace(request.evaluation, zones=None)
-    cases = [{"id": "base", "label": BASE_LABEL, "loading": _loading(request.route, 1.0),
-              "outcome": "pass" if all(c["passes"] for c in base_compliance) else "fail",
-              "maxima": route_maxima(base_res), "compliance": [_compact(c) for c in base_compliance],
-              "receptors": _receptor_rows(base_res)}]
+    cases = [_entry("base", BASE_LABEL, request.route, 1.0, base_compliance, route_maxima(base_res),
+                    receptors=_receptor_rows(base_res))]
     for i, case in enumerate(request.load_cases or ()):
         route = apply_loading(request.route, currents_a=case.currents_a, voltages_kv=case.voltages_kv,
                               current_scale=case.current_scale, field=f"load_cases[{i}]")
         res = evaluate_route(route, request.frequency_hz, sets, crs=request.crs,
                              soil_resistivity_ohm_m=request.soil_resistivity_ohm_m, max_points=max_points)
         rows = _compliance(res, limits)
-        cases.append({"id": case.id, "label": case.label or case.id, "loading": _loading(route, case.current_scale),
-                      "outcome": "pass" if all(r["passes"] for r in rows) else "fail",
-                      "maxima": route_maxima(res), "compliance": [_compact(r) for r in rows],
-                      "receptors": _receptor_rows(res)})
+        cases.append(_entry(case.id, case.label or case.id, route, case.current_scale, rows, route_maxima(res),
+                            receptors=_receptor_rows(res)))
     return cases, _summary(cases, base_compliance)
