@@ -29,11 +29,12 @@ from .geometry import (
     support_chainage_m,
     validate_route,
 )
+from . import earth_return3d, magnetic3d
+from .earth_return3d import image_flux_density_segments
 from .electric3d import electric_field_segments, line_charges
 from .evaluate import RouteResult, evaluate_route
 from .electric3d import warm_up as warm_up_electric
 from .magnetic3d import flux_density_segments
-from .magnetic3d import warm_up as warm_up_magnetic
 from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
 
 __all__ = [
@@ -57,6 +58,7 @@ __all__ = [
     "discretise_route",
     "electric_field_segments",
     "flux_density_segments",
+    "image_flux_density_segments",
     "frame_at_chainage",
     "level_span_sag_m",
     "line_charges",
@@ -70,6 +72,14 @@ __all__ = [
     "strung_wires",
     "support_chainage_m",
     "validate_route",
-    "warm_up",
     "warm_up_electric",
+    "warm_up_magnetic",
 ]
+
+
+def warm_up_magnetic() -> float:
+    """Compile (or load from numba's disk cache) the 3-D magnetic kernels: free-space segments and earth-return images.
+
+    Returns the seconds spent; see :func:`models.route.magnetic3d.warm_up`.
+    """
+    return magnetic3d.warm_up() + earth_return3d.warm_up()
