@@ -7,7 +7,9 @@ Steps (pvlib ``ModelChain`` shape: a pure function returning a frozen result):
 2. discretise the route (:func:`models.route.discretise.discretise_route`) twice: per
    bundle subconductor for B, per bundle (equivalent radius) for E;
 3. B by Biot–Savart over the straight segments
-   (:func:`models.route.magnetic3d.flux_density_segments`); E by charge simulation
+   (:func:`models.route.magnetic3d.flux_density_segments`), plus their complex
+   earth-return images when a soil resistivity is given
+   (:func:`models.route.earth_return3d.image_flux_density_segments`); E by charge simulation
    (:func:`models.route.electric3d.line_charges` once, then
    :func:`~models.route.electric3d.electric_field_segments`) -- all evaluation sets in
    one call each;
@@ -28,10 +30,12 @@ from shapely.geometry import LineString
 
 from ..catalogue import UNIT_TO_SI, Threshold, custom_threshold, thresholds_for
 from ..errors import CatalogueError, EngineInputError, must_be
+from ..magnetic import complex_depth_m
 from ..results import FieldResult
 from ..sources import validate_frequency, validate_soil_resistivity
 from .crs import WorkingFrame, check_lon_lat, working_frame
 from .discretise import DEFAULT_TOLERANCE_M, discretise_route
+from .earth_return3d import image_flux_density_segments
 from .electric3d import electric_field_segments, line_charges
 from .evaluation import (
     CustomZoneLimit,
@@ -266,8 +270,9 @@ def evaluate_route(
     crs : str, optional
         Request CRS (``None`` = local metres; see :mod:`models.route.crs`).
     soil_resistivity_ohm_m : float, optional
-        Accepted for symmetry with the cross-section; earth-return currents are not
-        modelled in 3-D (stated in the assumptions).
+        Homogeneous soil resistivity [ohm m].  When given, earth-return currents of the
+        overhead wires are represented by their complex-depth images (Deri et al., as in
+        the 2-D engine) and added to B on every set; E is unaffected.  None: no image.
     max_points : int, optional
         Cap on the total number of observation points (and each set's own count).
     tolerance_m : float
@@ -286,8 +291,10 @@ def evaluate_route(
     Notes
     -----
     Ground is the flat plane z = 0 (:mod:`models.route.types`); observation heights
-    are above it.  B: Biot–Savart for finite straight segments in free space, no
-    earth-return images.  E: charge simulation with images in a perfectly
+    are above it.  B: Biot–Savart for finite straight segments in free space, plus
+    with ``soil_resistivity_ohm_m`` the images of the overhead segments mirrored about
+    the plane at the complex depth p below z = 0 (:mod:`models.route.earth_return3d`).
+    E: charge simulation with images in a perfectly
     conducting plane (:mod:`models.route.electric3d`).  The conductors end at the
     first and last supports.
 
@@ -385,6 +392,9 @@ def evaluate_route(
     }
     try:
         b = flux_density_segments(points, seg_b)
+        if rho is not None:
+            # earth-return images of the overhead segments, mirrored about the complex plane below z = 0
+            b += image_flux_density_segments(points, seg_b, complex_depth_m(rho, f))
         charges = line_charges(seg_e)
         e = electric_field_segments(points, seg_e, charges)
     except EngineInputError as exc:
@@ -440,8 +450,12 @@ def _assumptions(frame: WorkingFrame, f: float, rho: float | None, route_m: Rout
     if rho is None:
         items.append("Earth-return currents are neglected (no ground image for B).")
     else:
-        items.append(f"Earth-return currents are not modelled in 3-D: the stated soil resistivity ({rho:g} ohm m) "
-                     "is not used (for balanced circuits their effect near the line is small).")
+        items.append(f"Magnetic field: earth-return currents of the overhead conductors and earth wires represented "
+                     f"by complex-depth images (Deri et al. 1981) in homogeneous soil of {rho:g} ohm m: each segment "
+                     "mirrored about the plane at the complex depth p below the flat ground plane z = 0 (the same "
+                     "plane everywhere, support ground elevations notwithstanding), carrying the opposite current; "
+                     "underground cables get no image. The electric field is unaffected (at power frequency the "
+                     "earth is a perfect conductor for E).")
     if route_m.earth_wires:
         items.append("Earth wires carry no current unless an earth-wire current is given (induced currents not computed).")
     if evaluation.lateral_profile is not None:

@@ -4,7 +4,8 @@ Coordinates: a projected plane in metres, ``x`` east, ``y`` north, ``z`` up.
 Ground is the horizontal plane z = 0 (flat ground, the default and only model);
 ``Support.ground_elevation_m`` raises that support's attachment points
 (z = ground_elevation_m + attachment height) but terrain between supports is
-not modelled, and field images are taken in the plane z = 0.  Observation
+not modelled, and field images are taken in the plane z = 0 (E) or about the plane at the
+complex earth-return depth below it (B, with a soil resistivity).  Observation
 heights are heights above that plane.
 
 Offsets across the line are positive to the right looking from the first support

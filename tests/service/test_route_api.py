@@ -313,6 +313,21 @@ def test_route_responses_match_the_openapi_document(client):
     check_response(spec, client.post("/v1/evaluate", json=bad))
 
 
+def test_soil_resistivity_adds_earth_return_to_route_b_only(client):
+    # A balanced circuit over 100 ohm m soil: the earth-return images (models.route.earth_return3d,
+    # tested against the 2-D Deri image) change B slightly; E is unaffected (perfect conductor for E).
+    plain = client.post("/v1/evaluate", json=small_route_body()).get_json()
+    response = client.post("/v1/evaluate", json=small_route_body(soil_resistivity_ohm_m=100.0))
+    assert response.status_code == 200, response.get_data(as_text=True)
+    soil = response.get_json()
+    assert soil["input"]["soil_resistivity_ohm_m"] == 100.0
+    for a, b in zip(plain["results"]["receptors"], soil["results"]["receptors"]):
+        assert a["e_kv_m"] == b["e_kv_m"]
+        assert 0 < abs(a["b_ut"] - b["b_ut"]) < 0.01 * a["b_ut"]
+    assert any("Deri" in a and "100 ohm m" in a for a in soil["assumptions"])
+    assert not any("Deri" in a for a in plain["assumptions"])
+
+
 def test_route_point_cap_by_config():
     from service import create_app
 
