@@ -25,7 +25,8 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
 from service import create_app  # noqa: E402
-from service.assessment import evaluation_points, thresholds  # noqa: E402
+from models.section_sets import section_points  # noqa: E402
+from service.report import thresholds  # noqa: E402
 from service.schemas import load_assessment_request  # noqa: E402
 
 from models.compliance import evaluate_compliance  # noqa: E402
@@ -50,7 +51,7 @@ def main() -> None:
         for step, n_expected in ((0.5, 401), (0.01, 20_001)):
             body = {**demo, "profile": {"from_m": -100, "to_m": 100, "step_m": step, "height_m": 1.0}}
             req = load_assessment_request(body, max_points=20_001, max_conductors=64)
-            offsets, heights = evaluation_points(req)
+            offsets, heights = section_points(req.sets)
             assert offsets.size == n_expected
             limits = thresholds(req)
 

@@ -14,7 +14,7 @@ import math
 
 import numpy as np
 
-from .magnetic import _flat_inputs
+from .magnetic import flat_inputs
 from .units import EPS0_F_PER_M
 
 
@@ -125,7 +125,7 @@ def electric_field_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
     >>> round(float(e[0, 1].real), 3), float(e[0, 0].real)   # -2 q / (2 pi eps0 h), 0
     (-3595.021, 0.0)
     """
-    ox, oy, cx, cy, q, out = _flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
+    ox, oy, cx, cy, q, out = flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
     if cx.size == 0 or ox.size == 0:
         return out
     _kernel()(ox, oy, cx, cy, np.ascontiguousarray(q.real), np.ascontiguousarray(q.imag), out)

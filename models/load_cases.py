@@ -23,11 +23,28 @@ import dataclasses
 import math
 from collections.abc import Mapping
 
-from .errors import LoadingError, must_be
-from .geometry import CrossSection, CurrentPhasor
-from .route.types import Route
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from typing import Any, TypeVar
 
-__all__ = ["apply_loading"]
+from .errors import LoadingError, must_be
+from .geometry import CurrentPhasor
+
+__all__ = ["LoadCase", "apply_loading", "evaluate_load_cases"]
+
+Line = TypeVar("Line")
+"""A cross-section (:class:`models.geometry.CrossSection`) or a route (:class:`models.route.types.Route`)."""
+
+
+@dataclass(frozen=True)
+class LoadCase:
+    """Other loading of the same line: see :func:`apply_loading` for what each member does."""
+
+    id: str
+    label: str = ""
+    current_scale: float = 1.0
+    currents_a: dict[str, float] | None = None
+    voltages_kv: dict[str, float] | None = None
 
 
 def _non_negative(value: float, field: str) -> float:
@@ -42,13 +59,13 @@ def _scaled(current: CurrentPhasor | None, scale: float) -> CurrentPhasor | None
 
 
 def apply_loading(
-    section: CrossSection | Route,
+    section: Line,
     *,
     currents_a: Mapping[str, float] | None = None,
     voltages_kv: Mapping[str, float] | None = None,
     current_scale: float = 1.0,
     field: str = "load_case",
-) -> CrossSection:
+) -> Line:
     """The section with other circuit currents/voltages and all currents scaled.
 
     Parameters
@@ -74,7 +91,7 @@ def apply_loading(
 
     Examples
     --------
-    >>> from models.geometry import Bundle, Circuit, Conductor
+    >>> from models.geometry import Bundle, Circuit, Conductor, CrossSection
     >>> c = Circuit("c1", "overhead", 132.0, 500.0, (Conductor("L1", 0.0, 12.0),), Bundle(0.03))
     >>> apply_loading(CrossSection((c,)), currents_a={"c1": 800.0}, current_scale=1.5).circuits[0].current_a
     1200.0
@@ -98,3 +115,25 @@ def apply_loading(
     earth_wires = tuple(dataclasses.replace(w, current=_scaled(w.current, scale)) if w.current is not None else w
                         for w in section.earth_wires)
     return dataclasses.replace(section, circuits=tuple(circuits), earth_wires=earth_wires)
+
+
+def evaluate_load_cases(line: Line, cases: Sequence[LoadCase], evaluate: Callable[[Line], Any], *,
+                        field: str = "load_cases") -> list[tuple[LoadCase, Line, Any]]:
+    """Each load case applied to ``line`` and evaluated with ``evaluate`` (one call per case, in order).
+
+    ``evaluate`` takes the loaded line and returns its evaluation (for example
+    ``lambda s: evaluate_section(s, 50.0, sets)``).  Errors name
+    ``f"{field}[i]..."`` (:func:`apply_loading`).
+
+    >>> from models.geometry import Bundle, Circuit, Conductor, CrossSection
+    >>> c = Circuit("c1", "overhead", 132.0, 500.0, (Conductor("L1", 0.0, 12.0),), Bundle(0.03))
+    >>> [(case.id, s.circuits[0].current_a) for case, s, _ in
+    ...  evaluate_load_cases(CrossSection((c,)), [LoadCase("peak", current_scale=2.0)], lambda s: None)]
+    [('peak', 1000.0)]
+    """
+    out = []
+    for i, case in enumerate(cases):
+        loaded = apply_loading(line, currents_a=case.currents_a, voltages_kv=case.voltages_kv,
+                               current_scale=case.current_scale, field=f"{field}[{i}]")
+        out.append((case, loaded, evaluate(loaded)))
+    return out

@@ -94,7 +94,7 @@ def flux_density_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a, *,
     >>> round(float(b[0, 1].real) * 1e6, 4)   # mu0 I / (2 pi r) in µT
     200.0
     """
-    ox, oy, cx, cy, current, out = _flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a)
+    ox, oy, cx, cy, current, out = flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a)
     if cx.size == 0 or ox.size == 0:
         return out
     _kernels()[0](ox, oy, cx, cy, np.ascontiguousarray(current.real), np.ascontiguousarray(current.imag), out)
@@ -131,7 +131,7 @@ def earth_return_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a, comple
     >>> bool(abs(image).max() < 1e-6 * abs(flux_density_phasors(*args)).max())   # return current far away
     True
     """
-    ox, oy, cx, cy, current, out = _flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a)
+    ox, oy, cx, cy, current, out = flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a)
     if cx.size == 0 or ox.size == 0:
         return out
     _kernels()[1](ox, oy, cx, cy, current, complex(complex_depth_m), out)
@@ -139,7 +139,7 @@ def earth_return_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a, comple
     return out
 
 
-def _flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, values):
+def flat_inputs(obs_x_m, obs_y_m, cond_x_m, cond_y_m, values):
     """Flat contiguous float/complex arrays for the compiled loops, and a zero (n, 2) output."""
     ox, oy, cx, cy = (np.ascontiguousarray(a, dtype=float).ravel() for a in (obs_x_m, obs_y_m, cond_x_m, cond_y_m))
     vals = np.ascontiguousarray(values, dtype=complex).ravel()

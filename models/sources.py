@@ -287,7 +287,7 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
 # --------------------------------------------------------------------------- validation
 
 
-def _finite(path: str, value: object, constraint: str, cls: type[EngineInputError]) -> float:
+def check_finite(path: str, value: object, constraint: str, cls: type[EngineInputError]) -> float:
     """Return ``value`` as float, or raise if it is not a finite real number."""
     if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
         raise must_be(path, f"a finite number, {constraint}", value, cls)
@@ -304,7 +304,7 @@ def validate_frequency(frequency_hz: float, field: str = "frequency_hz") -> floa
     50.0
     """
     lo, hi = FREQUENCY_RANGE_HZ
-    f = _finite(field, frequency_hz, f"between {lo:g} and {hi:g} Hz", LoadingError)
+    f = check_finite(field, frequency_hz, f"between {lo:g} and {hi:g} Hz", LoadingError)
     if not lo <= f <= hi:
         raise must_be(field, f"between {lo:g} and {hi:g} Hz", frequency_hz, LoadingError)
     return f
@@ -318,23 +318,23 @@ def validate_soil_resistivity(rho_ohm_m: float | None, field: str = "soil_resist
     """
     if rho_ohm_m is None:
         return None
-    rho = _finite(field, rho_ohm_m, "> 0 ohm m", LoadingError)
+    rho = check_finite(field, rho_ohm_m, "> 0 ohm m", LoadingError)
     if rho <= 0:
         raise must_be(field, "> 0 ohm m", rho_ohm_m, LoadingError)
     return rho
 
 
-def _check_phasor(path: str, phasor, magnitude_name: str) -> None:
+def check_phasor(path: str, phasor, magnitude_name: str) -> None:
     if phasor is None:
         return
-    mag = _finite(f"{path}.{magnitude_name}", getattr(phasor, magnitude_name), ">= 0", LoadingError)
+    mag = check_finite(f"{path}.{magnitude_name}", getattr(phasor, magnitude_name), ">= 0", LoadingError)
     if mag < 0:
         raise must_be(f"{path}.{magnitude_name}", ">= 0", mag, LoadingError)
-    _finite(f"{path}.angle_deg", phasor.angle_deg, "in degrees", LoadingError)
+    check_finite(f"{path}.angle_deg", phasor.angle_deg, "in degrees", LoadingError)
 
 
 def _check_bundle(path: str, bundle: Bundle) -> None:
-    d = _finite(f"{path}.subconductor_diameter_m", bundle.subconductor_diameter_m, "> 0 m", GeometryError)
+    d = check_finite(f"{path}.subconductor_diameter_m", bundle.subconductor_diameter_m, "> 0 m", GeometryError)
     if d <= 0:
         raise must_be(f"{path}.subconductor_diameter_m", "> 0 m", bundle.subconductor_diameter_m, GeometryError)
     n = bundle.count
@@ -343,7 +343,7 @@ def _check_bundle(path: str, bundle: Bundle) -> None:
     if n > 1:
         if bundle.spacing_m is None:
             raise must_be(f"{path}.spacing_m", "given (> 0 m) when count > 1", None, GeometryError)
-        s = _finite(f"{path}.spacing_m", bundle.spacing_m, "> 0 m", GeometryError)
+        s = check_finite(f"{path}.spacing_m", bundle.spacing_m, "> 0 m", GeometryError)
         if s <= d:
             raise must_be(f"{path}.spacing_m",
                           f"> subconductor_diameter_m = {d!r} m (subconductors must not overlap)",
@@ -382,10 +382,10 @@ def validate_circuit(circuit: Circuit, field: str = "circuit") -> float:
     if circuit.kind not in ("overhead", "underground"):
         raise must_be(f"{field}.kind", "'overhead' or 'underground'", circuit.kind, GeometryError)
     for name in ("voltage_kv", "current_a"):
-        value = _finite(f"{field}.{name}", getattr(circuit, name), ">= 0", LoadingError)
+        value = check_finite(f"{field}.{name}", getattr(circuit, name), ">= 0", LoadingError)
         if value < 0:
             raise must_be(f"{field}.{name}", ">= 0", getattr(circuit, name), LoadingError)
-    _finite(f"{field}.angle_offset_deg", circuit.angle_offset_deg, "in degrees", LoadingError)
+    check_finite(f"{field}.angle_offset_deg", circuit.angle_offset_deg, "in degrees", LoadingError)
     if not circuit.conductors:
         raise must_be(f"{field}.conductors", "a non-empty list of conductors", [], GeometryError)
     _check_bundle(f"{field}.bundle", circuit.bundle)
@@ -437,8 +437,8 @@ def validate_cross_section(section: CrossSection, frequency_hz: float, *, field:
         outer = validate_circuit(circuit, cpath)
         for k, conductor in enumerate(circuit.conductors):
             kpath = f"{cpath}.conductors[{k}]"
-            x = _finite(f"{kpath}.offset_m", conductor.offset_m, "in metres", GeometryError)
-            y = _finite(f"{kpath}.height_m", conductor.height_m, "in metres", GeometryError)
+            x = check_finite(f"{kpath}.offset_m", conductor.offset_m, "in metres", GeometryError)
+            y = check_finite(f"{kpath}.height_m", conductor.height_m, "in metres", GeometryError)
             if circuit.kind == "overhead" and y - outer <= 0:
                 raise must_be(f"{kpath}.height_m",
                               f"> {outer!r} m (conductor radius plus bundle radius, clear of the ground) "
@@ -447,29 +447,29 @@ def validate_cross_section(section: CrossSection, frequency_hz: float, *, field:
                 raise must_be(f"{kpath}.height_m",
                               f"< {-outer!r} m (negative depth, conductor fully below ground) "
                               "for an underground conductor", conductor.height_m, GeometryError)
-            _check_phasor(f"{kpath}.current", conductor.current, "magnitude_a")
-            _check_phasor(f"{kpath}.voltage_to_ground", conductor.voltage_to_ground, "magnitude_kv")
+            check_phasor(f"{kpath}.current", conductor.current, "magnitude_a")
+            check_phasor(f"{kpath}.voltage_to_ground", conductor.voltage_to_ground, "magnitude_kv")
             envelopes.append((x, y, outer, kpath))
     for j, wire in enumerate(section.earth_wires):
         wpath = f"{field}.earth_wires[{j}]"
-        x = _finite(f"{wpath}.offset_m", wire.offset_m, "in metres", GeometryError)
-        y = _finite(f"{wpath}.height_m", wire.height_m, "in metres", GeometryError)
-        d = _finite(f"{wpath}.diameter_m", wire.diameter_m, "> 0 m", GeometryError)
+        x = check_finite(f"{wpath}.offset_m", wire.offset_m, "in metres", GeometryError)
+        y = check_finite(f"{wpath}.height_m", wire.height_m, "in metres", GeometryError)
+        d = check_finite(f"{wpath}.diameter_m", wire.diameter_m, "> 0 m", GeometryError)
         if d <= 0:
             raise must_be(f"{wpath}.diameter_m", "> 0 m", wire.diameter_m, GeometryError)
         if y - d / 2.0 <= 0:
             raise must_be(f"{wpath}.height_m", f"> {d / 2.0!r} m (wire radius, clear of the ground)",
                           wire.height_m, GeometryError)
-        _check_phasor(f"{wpath}.current", wire.current, "magnitude_a")
+        check_phasor(f"{wpath}.current", wire.current, "magnitude_a")
         envelopes.append((x, y, d / 2.0, wpath))
-    _check_overlaps(envelopes)
+    check_overlaps(envelopes)
 
 
 _SMALL_PAIR_COUNT = 24
 """Up to this many conductors the overlap check runs as plain loops, above it in numpy."""
 
 
-def _check_overlaps(envelopes: list[tuple[float, float, float, str]]) -> None:
+def check_overlaps(envelopes: list[tuple[float, float, float, str]]) -> None:
     """Raise GeometryError for the first pair of conductors whose outer circles touch or overlap."""
     if len(envelopes) < 2:
         return

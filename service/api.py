@@ -12,20 +12,18 @@ from functools import lru_cache
 from pathlib import Path
 from typing import Any
 
-from flask import Blueprint, Response, current_app, jsonify, request, url_for
-from marshmallow import ValidationError
+from flask import Blueprint, Response, current_app, jsonify, url_for
 from sqlalchemy.exc import SQLAlchemyError
-from werkzeug.exceptions import BadRequest, NotFound, UnsupportedMediaType
+from werkzeug.exceptions import NotFound
 
 from models import catalogue
 from models.errors import CatalogueError
 
 from . import storage
-from .assessment import build_report, threshold_row
-from .errors import INVALID_PARAMETER, ProblemError
-from .route_assessment import build_route_report
-from .route_schemas import geometry_kind, load_route_request
-from .schemas import ListQuerySchema, ReferenceLevelQuerySchema, load_assessment_request
+from .errors import ProblemError
+from .inputs import ListQuerySchema, ReferenceLevelQuerySchema, invalid_parameter, json_body, load_query
+from .report import compute_report
+from .tables import threshold_row
 
 bp = Blueprint("api", __name__)
 
@@ -44,45 +42,6 @@ def healthz() -> Response:
 
 
 # --------------------------------------------------------------------------- helpers
-
-
-def _json_body() -> Any:
-    """The parsed JSON body: 415 if not declared as JSON, 400 if malformed, 413 if too large."""
-    if not request.is_json:
-        raise UnsupportedMediaType("Send the request body as JSON with Content-Type: application/json.")
-    raw = request.get_data(cache=True)  # raises RequestEntityTooLarge over MAX_CONTENT_LENGTH
-    try:
-        return json.loads(raw)  # NaN/Infinity tokens parse here and are refused by the schemas, by field
-    except RecursionError:
-        raise BadRequest("The JSON body is nested too deeply.") from None
-    except ValueError as exc:  # includes UnicodeDecodeError and over-long integers
-        raise BadRequest(f"The body is not valid JSON: {exc}") from None
-
-
-def _compute_report(body: Any) -> dict[str, Any]:
-    """Validate a request body and build its report (the one place both POST routes share).
-
-    Another request geometry (e.g. a route) is dispatched here on the body's shape.
-    """
-    if geometry_kind(body) == "route":  # a line in map coordinates (3-D): service.route_*
-        cap = current_app.config["MAX_ROUTE_POINTS"]
-        route_request = load_route_request(body, max_route_points=cap,
-                                           max_conductors=current_app.config["MAX_CONDUCTORS"])
-        return build_route_report(route_request, max_points=cap)
-    request_obj = load_assessment_request(body, max_points=current_app.config["MAX_POINTS"],
-                                          max_conductors=current_app.config["MAX_CONDUCTORS"])
-    return build_report(request_obj)
-
-
-def _query(schema: Any) -> dict[str, Any]:
-    """Query parameters loaded with ``schema``; errors become a 400 problem naming each parameter."""
-    try:
-        return schema.load(request.args.to_dict())
-    except ValidationError as exc:
-        errors = [{"parameter": name, "detail": " ".join(map(str, msgs)) if isinstance(msgs, list) else str(msgs)}
-                  for name, msgs in exc.messages.items()]
-        raise ProblemError(400, "Invalid query parameter(s); see errors.", errors=errors,
-                           type_=INVALID_PARAMETER, title="Invalid query parameter") from None
 
 
 def _json_text(text: str) -> Response:
@@ -110,7 +69,7 @@ def _summary(record: storage.AssessmentRecord) -> dict[str, Any]:
 @bp.post("/v1/assessments")
 def create_assessment() -> tuple[Response, int, dict[str, str]]:
     """Compute an assessment and store it."""
-    report = _compute_report(_json_body())
+    report = compute_report(json_body(), current_app.config)
     session = storage.get_session()
     with session.begin():
         record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
@@ -132,16 +91,15 @@ def get_assessment(assessment_id: uuid.UUID) -> Response:
 @bp.get("/v1/assessments")
 def list_assessments() -> Response:
     """Stored assessments, newest first, with filters and cursor pagination."""
-    query = _query(ListQuerySchema())
+    query = load_query(ListQuerySchema())
     limit = min(query.get("limit", current_app.config["PAGE_SIZE_DEFAULT"]), current_app.config["PAGE_SIZE_MAX"])
     before = None
     if "cursor" in query:
         try:
             before = storage.decode_cursor(query["cursor"])
         except ValueError:
-            raise ProblemError(400, "The cursor is not one issued by this service.", type_=INVALID_PARAMETER,
-                               title="Invalid query parameter",
-                               errors=[{"parameter": "cursor", "detail": "Not a valid cursor."}]) from None
+            raise invalid_parameter("cursor", "Not a valid cursor.",
+                                    "The cursor is not one issued by this service.") from None
     session = storage.get_session()
     with session.begin():
         page = storage.list_assessments(
@@ -156,7 +114,7 @@ def list_assessments() -> Response:
 @bp.post("/v1/evaluate")
 def evaluate() -> Response:
     """Compute an assessment without storing it."""
-    report = _compute_report(_json_body())
+    report = compute_report(json_body(), current_app.config)
     return jsonify({"id": None, "created_at": None, **report, "digest": None})
 
 
@@ -166,12 +124,11 @@ def evaluate() -> Response:
 @bp.get("/v1/reference-levels")
 def reference_levels() -> Response:
     """The reference-level catalogue with citations, evaluated at one frequency."""
-    frequency_hz = _query(ReferenceLevelQuerySchema())["frequency_hz"]
+    frequency_hz = load_query(ReferenceLevelQuerySchema())["frequency_hz"]
     try:
         levels = catalogue.levels_at(frequency_hz)
     except CatalogueError as exc:
-        raise ProblemError(400, exc.message, type_=INVALID_PARAMETER, title="Invalid query parameter",
-                           errors=[{"parameter": "frequency_hz", "detail": exc.message}]) from None
+        raise invalid_parameter("frequency_hz", exc.message) from None
     return jsonify({"catalogue_version": catalogue.CATALOGUE_VERSION, "frequency_hz": frequency_hz,
                     "thresholds": [threshold_row(t) for t in levels]})
 

@@ -23,12 +23,15 @@ from datetime import datetime, timezone
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request, url_for
-from marshmallow import Schema, fields, validate
-from sqlalchemy import select
+from marshmallow import ValidationError
 from werkzeug.exceptions import NotAcceptable, NotFound
 
+from models.errors import EngineInputError
+
 from . import audit, reports, storage
-from .errors import INVALID_PARAMETER, ProblemError
+from .errors import ProblemError
+from .inputs import ChainQuerySchema, invalid_parameter, load_query
+from .report import compute_report
 
 bp = Blueprint("reports", __name__)
 
@@ -56,9 +59,8 @@ def _negotiate() -> str:
     fmt = request.args.get("format")
     if fmt is not None:
         if fmt not in FORMATS:
-            raise ProblemError(400, f"format must be one of {', '.join(FORMATS)}; instead received {fmt!r}.",
-                               type_=INVALID_PARAMETER, title="Invalid query parameter",
-                               errors=[{"parameter": "format", "detail": f"Must be one of {', '.join(FORMATS)}."}])
+            raise invalid_parameter("format", f"Must be one of {', '.join(FORMATS)}.",
+                                    f"format must be one of {', '.join(FORMATS)}; instead received {fmt!r}.")
         return FORMATS[fmt]
     if not request.headers.get("Accept"):
         return "application/json"  # no Accept header: any type is acceptable (RFC 9110, 12.5.1)
@@ -139,27 +141,17 @@ def get_geojson(assessment_id: uuid.UUID) -> Response:
                    filename=f"assessment-{assessment_id}.geojson", vary=False)
 
 
-def _recompute(request_json: str) -> dict[str, Any]:
-    """The report the current engine and catalogue give for a stored canonical request.
+def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:
+    """Recompute a stored canonical request with today's engine and catalogue and compare.
 
     The stored request goes through the same validation and dispatch as a new one
-    (:func:`service.api._compute_report`), so a request that would be refused today is
-    reported as not recomputable.
+    (:func:`service.report.compute_report`), so a request that would be refused today
+    is reported as not recomputable.
     """
-    from .api import _compute_report
-
-    return _compute_report(json.loads(request_json))
-
-
-def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:
-    from marshmallow import ValidationError
-
-    from models.errors import EngineInputError
-
     out: dict[str, Any] = {"tolerance": {"rtol": audit.RTOL, "atol": audit.ATOL,
                                          "rule": "|stored - recomputed| <= atol + rtol * max(|stored|, |recomputed|)"}}
     try:
-        fresh = _recompute(record.request_json)
+        fresh = compute_report(json.loads(record.request_json), current_app.config)
     except (ValidationError, EngineInputError, ValueError) as exc:
         detail = exc.messages if isinstance(exc, ValidationError) else str(exc)
         return {**out, "matches": None, "error": f"The stored request no longer loads or evaluates: {detail}"}
@@ -202,33 +194,6 @@ def verify_assessment(assessment_id: uuid.UUID) -> Response:
     })
 
 
-MAX_CHAIN_PAGE = 100_000
-"""Largest ``limit`` of one ``GET /v1/audit/verify-chain`` page (records)."""
-
-
-class ChainQuerySchema(Schema):
-    """Query of ``GET /v1/audit/verify-chain``: a page of the chain by sequence numbers."""
-
-    from_sequence = fields.Integer(load_default=1, strict=False,
-                                   validate=validate.Range(min=1, error="Must be at least 1."))
-    limit = fields.Integer(load_default=None, validate=validate.Range(
-        min=1, max=MAX_CHAIN_PAGE, error=f"Must be between 1 and {MAX_CHAIN_PAGE}."))
-
-
-def _chain_range(session: Any, first: int, last: int, batch_size: int = 500):
-    """Records with ``first <= sequence <= last`` in chain order, fetched in batches."""
-    seq = first - 1
-    while True:
-        rows = list(session.scalars(
-            select(storage.AssessmentRecord)
-            .where(storage.AssessmentRecord.sequence > seq, storage.AssessmentRecord.sequence <= last)
-            .order_by(storage.AssessmentRecord.sequence).limit(batch_size)))
-        if not rows:
-            return
-        yield from rows
-        seq = rows[-1].sequence
-
-
 @bp.get("/v1/audit/verify-chain")
 def verify_chain() -> Response:
     """Check the stored records' digests and links: the whole chain, or one page of it.
@@ -238,24 +203,18 @@ def verify_chain() -> Response:
     checked against the stored digest of its predecessor, and the head row only when
     the page reaches it.  ``next_from_sequence`` gives the next page (null at the end).
     """
-    from .api import _query
-
-    query = _query(ChainQuerySchema())
+    query = load_query(ChainQuerySchema())
     first, limit = query["from_sequence"], query["limit"]
     session = storage.get_session()
     with session.begin():
         head = storage.chain_head(session)
         # Records appended after the head was read (concurrent inserts) are not part of this check.
         if first > max(head[0], 1):
-            raise ProblemError(400, f"from_sequence is beyond the chain head (sequence {head[0]}).",
-                               type_=INVALID_PARAMETER, title="Invalid query parameter",
-                               errors=[{"parameter": "from_sequence",
-                                        "detail": f"Must be at most {max(head[0], 1)}, the chain head's sequence."}])
+            raise invalid_parameter("from_sequence", f"Must be at most {max(head[0], 1)}, the chain head's sequence.",
+                                    f"from_sequence is beyond the chain head (sequence {head[0]}).")
         last = head[0] if limit is None else min(head[0], first + limit - 1)
-        anchor = storage.GENESIS_DIGEST if first == 1 else session.scalar(
-            select(storage.AssessmentRecord.digest).where(storage.AssessmentRecord.sequence == first - 1))
-        result = audit.verify_chain(_chain_range(session, first, last), head, from_sequence=first,
-                                    anchor_digest=anchor, check_head=last >= head[0])
+        result = audit.verify_chain(storage.iter_chain(session, first, last), head, from_sequence=first,
+                                    anchor_digest=storage.digest_before(session, first), check_head=last >= head[0])
     result.update({"from_sequence": first, "to_sequence": max(last, first - 1),
                    "complete": last >= head[0], "next_from_sequence": last + 1 if last < head[0] else None})
     result["checked_at"] = storage.rfc3339(datetime.now(timezone.utc))

@@ -10,7 +10,7 @@ evaluation sets ``path``, ``lateral_profile``, ``receptors``, ``grid``, ``right_
 is accepted and ignored: heights come from ``height_m``); all numbers finite;
 longitudes within [-180, 180] and latitudes within [-90, 90] when the route's CRS is
 geographic.  The loaded request holds engine dataclasses (:mod:`models.route.types`,
-:mod:`models.route.evaluation`).
+:mod:`models.route.sets`).
 """
 
 from __future__ import annotations
@@ -23,9 +23,10 @@ import numpy as np
 from marshmallow import EXCLUDE, Schema, ValidationError, fields, post_load, validate, validates_schema
 from shapely.geometry import LineString
 
-from models.catalogue import UNIT_TO_SI
 from models.errors import EngineInputError
-from models.route.evaluation import (
+from models.load_cases import LoadCase
+from models.route.crs import is_geographic
+from models.route.sets import (
     CustomZoneLimit,
     EvaluationSets,
     GridSet,
@@ -37,24 +38,21 @@ from models.route.evaluation import (
 from models.route.right_of_way import DEFAULT_EDGE_HEIGHT_M, DEFAULT_EDGE_STEP_M, RightOfWaySet
 from models.route.types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, Support
 
-from .schemas import (
+from .schema_fields import (
     ID_TEXT,
+    LOAD_CASE_POINT_FACTOR,
     NON_NEGATIVE,
     POSITIVE,
+    UNITS,
     AssessmentBaseSchema,
-    CircuitSchema,
-    CurrentPhasorSchema,
     CustomLimit,
-    LOAD_CASE_POINT_FACTOR,
-    MAX_LOAD_CASES,
     FiniteFloat,
-    LoadCase,
-    LoadCaseSchema,
-    ProfileSchema,
-    RightOfWaySchema,
-    VoltagePhasorSchema,
     check_load_cases,
+    check_lon_lat,
+    check_unique,
+    to_plain,
 )
+from .schemas import CircuitSchema, CurrentPhasorSchema, ProfileSchema, RightOfWaySchema, VoltagePhasorSchema
 
 MAX_SUPPORTS = 200
 MAX_PATH_POSITIONS = 10_000
@@ -140,17 +138,11 @@ class RouteCircuitSchema(CircuitSchema):
 
 
 def crs_is_geographic(crs: str | None) -> bool:
-    """True for a geographic (lon/lat) CRS; raises EngineInputError(route.crs) for an unusable one."""
-    if crs is None:
-        return False
-    from pyproj import CRS
-    from pyproj.exceptions import CRSError
-
+    """True for a geographic (lon/lat) CRS (:func:`models.route.crs.is_geographic`); 422 at ``crs`` for an unknown one."""
     try:
-        return bool(CRS.from_user_input(crs).is_geographic)
-    except CRSError:
-        raise EngineInputError("route.crs", f"Input route.crs must be a known CRS (e.g. 'EPSG:32632', "
-                                            f"'EPSG:4326'); instead received {crs!r}.") from None
+        return is_geographic(crs)
+    except EngineInputError as exc:
+        raise ValidationError(exc.message, field_name="crs") from None
 
 
 class RouteSchema(Schema):
@@ -163,14 +155,8 @@ class RouteSchema(Schema):
     @validates_schema
     def consistent(self, data: dict[str, Any], **kwargs: Any) -> None:
         supports: list[Support] = data["supports"]
-        ids = [s.id for s in supports]
-        for i, sid in enumerate(ids):
-            if sid in ids[:i]:
-                raise ValidationError({"supports": {i: {"id": [f"Duplicate support id {sid!r}."]}}})
-        cids = [c.id for c in data["circuits"]]
-        for i, cid in enumerate(cids):
-            if cid in cids[:i]:
-                raise ValidationError({"circuits": {i: {"id": [f"Duplicate circuit id {cid!r}."]}}})
+        check_unique([s.id for s in supports], lambda i: ("supports", i, "id"), "support id")
+        check_unique([c.id for c in data["circuits"]], lambda i: ("circuits", i, "id"), "circuit id")
         n = len(supports)
         for i, c in enumerate(data["circuits"]):
             for j, cond in enumerate(c.conductors):
@@ -181,16 +167,9 @@ class RouteSchema(Schema):
             if w.attachments is not None and len(w.attachments) != n:
                 raise ValidationError({"earth_wires": {k: {"attachments": [
                     f"Give one attachment per support ({n}); instead received {len(w.attachments)}."]}}})
-        try:
-            geographic = crs_is_geographic(data["crs"])
-        except EngineInputError as exc:
-            raise ValidationError(exc.message, field_name="crs") from None
-        if geographic:
+        if crs_is_geographic(data["crs"]):
             for i, s in enumerate(supports):
-                if not -180.0 <= s.x_m <= 180.0:
-                    raise ValidationError({"supports": {i: {"x": ["Longitude must be within [-180, 180] degrees."]}}})
-                if not -90.0 <= s.y_m <= 90.0:
-                    raise ValidationError({"supports": {i: {"y": ["Latitude must be within [-90, 90] degrees."]}}})
+                check_lon_lat(s.x, s.y, ("supports", i, "x"), ("supports", i, "y"))
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> dict[str, Any]:
@@ -254,10 +233,7 @@ class ReceptorCollectionSchema(Schema):
 
     @validates_schema
     def unique_ids(self, data: dict[str, Any], **kwargs: Any) -> None:
-        ids = [r.id for r in data["features"]]
-        for i, rid in enumerate(ids):
-            if rid in ids[:i]:
-                raise ValidationError({"features": {i: {"properties": {"id": [f"Duplicate receptor id {rid!r}."]}}}})
+        check_unique([r.id for r in data["features"]], lambda i: ("features", i, "properties", "id"), "receptor id")
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> tuple[Receptor, ...]:
@@ -325,7 +301,7 @@ class RouteRightOfWaySchema(RightOfWaySchema):
 class ZoneThresholdField(fields.Field):
     """A zone threshold: a catalogue id (string) or ``{"id", "value", "unit"}`` (unit decides E or B)."""
 
-    default_error_messages = {"invalid": "Give a reference-level id or an object {id, value, unit}."}
+    default_error_messages = {"invalid": "Give a reference-level id or an object with id, value and unit."}
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> str | CustomZoneLimit:
         if isinstance(value, str):
@@ -340,7 +316,7 @@ class ZoneThresholdField(fields.Field):
 class _CustomZoneLimitSchema(Schema):
     id = fields.String(required=True, validate=ID_TEXT)
     value = FiniteFloat(required=True, validate=POSITIVE)
-    unit = fields.String(required=True, validate=validate.OneOf(sorted(UNIT_TO_SI)))
+    unit = fields.String(required=True, validate=UNITS)
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> CustomZoneLimit:
@@ -374,20 +350,20 @@ class RouteAssessmentRequest:
     soil_resistivity_ohm_m: float | None = None
     load_cases: tuple[LoadCase, ...] | None = None
 
+    @property
+    def line(self) -> Route:
+        """The line as given (base loading)."""
+        return self.route
 
-def _path_length_estimate_m(path: PathSet, geographic: bool) -> float:
-    """Path length [m]; in lon/lat by the local equirectangular scale (for the point-count check only)."""
-    if not geographic:
-        return float(path.geometry.length)
-    xy = np.radians(np.asarray(path.geometry.coords, dtype=float))
-    dx = np.diff(xy[:, 0]) * np.cos(0.5 * (xy[1:, 1] + xy[:-1, 1]))
-    dy = np.diff(xy[:, 1])
-    return float(np.sum(np.hypot(dx, dy)) * _EARTH_RADIUS_M)
+    @property
+    def sets(self) -> EvaluationSets:
+        """Where the fields are evaluated."""
+        return self.evaluation
 
 
-def _route_length_estimate_m(route: Route, geographic: bool) -> float:
-    """Centre-line length [m]; in lon/lat by the local equirectangular scale (for the point-count check only)."""
-    xy = np.array([[s.x_m, s.y_m] for s in route.supports], dtype=float)
+def _length_estimate_m(xy: np.ndarray, geographic: bool) -> float:
+    """Length [m] of a polyline; in lon/lat by the local equirectangular scale (for the point-count checks only)."""
+    xy = np.asarray(xy, dtype=float)
     if not geographic:
         return float(np.sum(np.hypot(*np.diff(xy, axis=0).T)))
     xy = np.radians(xy)
@@ -417,7 +393,6 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     grid = fields.Nested(GridSchema)
     zones = fields.Nested(ZonesSchema)
     right_of_way = fields.Nested(RouteRightOfWaySchema)
-    load_cases = fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
 
     def __init__(self, *, max_route_points: int = DEFAULT_MAX_ROUTE_POINTS, **kwargs: Any):
         super().__init__(**kwargs)
@@ -435,10 +410,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
                                   field_name="zones")
         route: Route = data["route"]["route"]
         geographic = crs_is_geographic(data["route"]["crs"])
-        n_cond = sum(len(c.conductors) for c in route.circuits) + len(route.earth_wires)
-        if n_cond > self.max_conductors:
-            raise ValidationError({"route": [
-                f"{n_cond} conductors and earth wires given; at most {self.max_conductors} are allowed."]})
+        self.check_conductor_count(route.circuits, route.earth_wires, "route")
         if geographic:
             self._check_lon_lat(data)
         cap = self.max_route_points
@@ -449,7 +421,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
                 raise ValidationError({"receptors": {"features": [
                     f"{len(data['receptors'])} receptors given; at most {cap} are allowed."]}})
         if "path" in data:
-            counts["path"] = _path_length_estimate_m(data["path"], geographic) / data["path"].step_m + 2
+            counts["path"] = _length_estimate_m(data["path"].geometry.coords, geographic) / data["path"].step_m + 2
             if counts["path"] > cap:
                 raise ValidationError({"path": {"step_m": [
                     f"The path has about {counts['path']:.0f} points; at most {cap} are allowed per request."]}})
@@ -468,7 +440,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
         if "right_of_way" in data:
             row = data["right_of_way"]
             # each edge is about as long as the centre line (mitres at angle supports add or take |offset| tan)
-            length = _route_length_estimate_m(route, geographic)
+            length = _length_estimate_m([(s.x, s.y) for s in route.supports], geographic)
             counts["right_of_way"] = 2 * (length / row.step_m + 2)
             if counts["right_of_way"] > cap:
                 raise ValidationError({"right_of_way": {"step_m": [
@@ -485,21 +457,15 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
 
     @staticmethod
     def _check_lon_lat(data: dict[str, Any]) -> None:
-        def check(x: float, y: float, where: dict) -> None:
-            if not (-180.0 <= x <= 180.0):
-                raise ValidationError(_nest(where, "Longitude must be within [-180, 180] degrees."))
-            if not (-90.0 <= y <= 90.0):
-                raise ValidationError(_nest(where, "Latitude must be within [-90, 90] degrees."))
-
         if "path" in data:
             for i, (x, y) in enumerate(data["path"].geometry.coords):
-                check(x, y, {"path": {"geometry": {"coordinates": {i: None}}}})
+                check_lon_lat(x, y, ("path", "geometry", "coordinates", i))
         for i, r in enumerate(data.get("receptors", ())):
-            check(r.x, r.y, {"receptors": {"features": {i: {"geometry": {"coordinates": None}}}}})
+            check_lon_lat(r.x, r.y, ("receptors", "features", i, "geometry", "coordinates"))
         if "grid" in data:
             minx, miny, maxx, maxy = data["grid"].bbox
-            check(minx, miny, {"grid": {"bbox": None}})
-            check(maxx, maxy, {"grid": {"bbox": None}})
+            check_lon_lat(minx, miny, ("grid", "bbox"))
+            check_lon_lat(maxx, maxy, ("grid", "bbox"))
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> RouteAssessmentRequest:
@@ -512,14 +478,6 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             reference_levels=tuple(data["reference_levels"]), custom_limits=tuple(data["custom_limits"]),
             soil_resistivity_ohm_m=data.get("soil_resistivity_ohm_m"),
             load_cases=tuple(data["load_cases"]) if "load_cases" in data else None)
-
-
-def _nest(where: dict, message: str) -> dict:
-    """Put ``message`` at the ``None`` leaf of a nested field-path dict."""
-    out: dict = {}
-    for key, value in where.items():
-        out[key] = [message] if value is None else _nest(value, message)
-    return out
 
 
 def geometry_kind(body: Any) -> str:
@@ -558,8 +516,6 @@ def _drop_none(d: dict[str, Any]) -> dict[str, Any]:
 
 
 def _phasor(p: Any) -> dict[str, float] | None:
-    from .schemas import to_plain
-
     return None if p is None else to_plain(p)
 
 
@@ -573,8 +529,6 @@ def _strung_plain(w: Any) -> dict[str, Any]:
 
 def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
     """The normalised request in its JSON form (loads again to an equal request)."""
-    from .schemas import to_plain
-
     route = req.route
     circuits = []
     for c in route.circuits:
@@ -591,7 +545,7 @@ def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
     body: dict[str, Any] = {
         "title": req.title, "reference": req.reference, "frequency_hz": req.frequency_hz,
         "route": _drop_none({"crs": req.crs,
-                             "supports": [{"id": s.id, "x": s.x_m, "y": s.y_m, "ground_elevation_m": s.ground_elevation_m}
+                             "supports": [{"id": s.id, "x": s.x, "y": s.y, "ground_elevation_m": s.ground_elevation_m}
                                           for s in route.supports],
                              "circuits": circuits, "earth_wires": earth_wires}),
         "reference_levels": list(req.reference_levels),

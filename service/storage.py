@@ -298,18 +298,26 @@ def count_assessments(session: Session) -> int:
     return session.scalar(select(func.count()).select_from(AssessmentRecord)) or 0
 
 
-def iter_chain(session: Session, batch_size: int = 500) -> Iterator[AssessmentRecord]:
-    """All records in chain order (ascending ``sequence``), fetched in batches."""
-    last = 0
+def iter_chain(session: Session, first: int = 1, last: int | None = None,
+               batch_size: int = 500) -> Iterator[AssessmentRecord]:
+    """Records with ``first <= sequence <= last`` (all by default) in chain order, fetched in batches."""
+    seq = first - 1
     while True:
-        rows = list(session.scalars(
-            select(AssessmentRecord).where(AssessmentRecord.sequence > last)
-            .order_by(AssessmentRecord.sequence).limit(batch_size)
-        ))
+        query = select(AssessmentRecord).where(AssessmentRecord.sequence > seq)
+        if last is not None:
+            query = query.where(AssessmentRecord.sequence <= last)
+        rows = list(session.scalars(query.order_by(AssessmentRecord.sequence).limit(batch_size)))
         if not rows:
             return
         yield from rows
-        last = rows[-1].sequence
+        seq = rows[-1].sequence
+
+
+def digest_before(session: Session, sequence: int) -> str | None:
+    """Stored digest of the record preceding ``sequence`` (:data:`GENESIS_DIGEST` before the first)."""
+    if sequence <= 1:
+        return GENESIS_DIGEST
+    return session.scalar(select(AssessmentRecord.digest).where(AssessmentRecord.sequence == sequence - 1))
 
 
 def chain_head(session: Session) -> tuple[int, str]:

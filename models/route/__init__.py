@@ -17,7 +17,7 @@ from .catenary import (
     parabolic_sag_m,
 )
 from .discretise import DEFAULT_TOLERANCE_M, discretise_route, segments_for_span
-from .geometry import (
+from .alignment import (
     StrungWire,
     attachment_points_m,
     deviation_angles_deg,
@@ -32,14 +32,13 @@ from .geometry import (
 from . import earth_return3d, magnetic3d
 from .earth_return3d import image_flux_density_segments
 from .electric3d import electric_field_segments, line_charges
-from .evaluate import RouteResult, evaluate_route
+from .evaluate import evaluate_route
 from .electric3d import warm_up as warm_up_electric
 from .magnetic3d import flux_density_segments
 from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
 
 __all__ = [
     "Attachment",
-    "RouteResult",
     "evaluate_route",
     "CatenarySpan",
     "DEFAULT_TOLERANCE_M",

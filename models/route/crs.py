@@ -147,6 +147,17 @@ def _parse_crs(crs: str):
         ) from None
 
 
+def is_geographic(crs: str | None) -> bool:
+    """True for a geographic (longitude/latitude) CRS; ``None`` (local metres) is not.
+
+    :raise models.errors.EngineInputError: an unknown CRS (field ``route.crs``).
+
+    >>> is_geographic("EPSG:4326"), is_geographic("EPSG:32632"), is_geographic(None)
+    (True, False, False)
+    """
+    return crs is not None and bool(_parse_crs(crs).is_geographic)
+
+
 def _directions_ok(parsed) -> bool:
     dirs = [a.direction.lower() for a in parsed.axis_info[:2]]
     return sorted(dirs) == ["east", "north"]

@@ -45,7 +45,7 @@ from ..errors import GeometryError, must_be
 from ..geometry import Bundle, Circuit, Conductor, CrossSection, EarthWire
 from ..sources import build_sources, equivalent_bundle_radius_m
 from .catenary import CatenarySpan
-from .geometry import OffsetConvention, StrungWire, offset_vectors, strung_wires
+from .alignment import OffsetConvention, StrungWire, offset_vectors, strung_wires
 from .types import Route, SegmentSet
 
 __all__ = ["DEFAULT_TOLERANCE_M", "discretise_route", "segments_for_span"]
@@ -156,7 +156,7 @@ def discretise_route(
         False (default): one wire per bundle subconductor (for B).  True: one wire
         per bundle with the equivalent radius (for E).
     convention : {"perpendicular", "along_bisector"}
-        Offset convention at angle supports, see :mod:`models.route.geometry`.
+        Offset convention at angle supports, see :mod:`models.route.alignment`.
 
     Returns
     -------
@@ -168,7 +168,7 @@ def discretise_route(
     Raises
     ------
     GeometryError, LoadingError
-        Invalid route (see :func:`models.route.geometry.strung_wires`) or tolerance.
+        Invalid route (see :func:`models.route.alignment.strung_wires`) or tolerance.
 
     Examples
     --------

@@ -63,7 +63,7 @@ import numpy as np
 
 from ..errors import GeometryError, must_be
 from ..units import MU0_H_PER_M
-from .magnetic3d import _KERNEL_LOCK, DEFAULT_CHUNK_SIZE, _runs, _segment_arrays
+from .magnetic3d import KERNEL_LOCK, DEFAULT_CHUNK_SIZE, segment_runs, segment_arrays
 from .types import SegmentSet
 
 __all__ = ["image_flux_density_segments", "image_flux_density_segments_numpy", "warm_up"]
@@ -97,7 +97,7 @@ def _check_points(points_m) -> np.ndarray:
 
 def _image_sources(segments, current_a):
     """(start, end, current) of the segments that get an image: all but screened (underground) wires."""
-    start, end, cur, _ = _segment_arrays(segments, current_a)
+    start, end, cur, _ = segment_arrays(segments, current_a)
     if isinstance(segments, SegmentSet):
         screened = np.asarray(segments.wire_screened, dtype=bool)[np.asarray(segments.wire_index)]
         start, end, cur = start[~screened], end[~screened], cur[~screened]
@@ -362,7 +362,7 @@ def image_flux_density_segments(points_m, segments, complex_depth_m, current_a=N
     p_c = _check_depth(complex_depth_m)
     pts = _check_points(points_m)
     start, end, cur = _image_sources(segments, current_a)
-    verts, run_start, run_links, run_cur, _ = _runs(start, end, cur)
+    verts, run_start, run_links, run_cur, _ = segment_runs(start, end, cur)
     wx, wy, wz = (np.ascontiguousarray(verts[:, k]) for k in range(3))
     run_re = np.ascontiguousarray(run_cur.real)
     run_im = np.ascontiguousarray(run_cur.imag)
@@ -377,7 +377,7 @@ def image_flux_density_segments(points_m, segments, complex_depth_m, current_a=N
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(pts[lo:hi, k]) for k in range(3))
-        with _KERNEL_LOCK, parallel_chunksize(1):
+        with KERNEL_LOCK, parallel_chunksize(1):
             kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, p_c.real, p_c.imag, -_K,
                    ov[lo:hi], int(tile))
     return out

@@ -22,7 +22,6 @@ from __future__ import annotations
 import dataclasses
 import math
 import re
-from dataclasses import dataclass, field
 
 import numpy as np
 import shapely
@@ -31,13 +30,14 @@ from shapely.geometry import LineString
 from ..catalogue import UNIT_TO_SI, Threshold, custom_threshold, thresholds_for
 from ..errors import CatalogueError, EngineInputError, must_be
 from ..magnetic import complex_depth_m
+from ..evaluation import Evaluation, EvaluationSet, sub_result
 from ..results import FieldResult
 from ..sources import validate_frequency, validate_soil_resistivity
 from .crs import WorkingFrame, check_lon_lat, working_frame
 from .discretise import DEFAULT_TOLERANCE_M, discretise_route
 from .earth_return3d import image_flux_density_segments
 from .electric3d import electric_field_segments, line_charges
-from .evaluation import (
+from .sets import (
     CustomZoneLimit,
     EvaluationSets,
     GridAxes,
@@ -51,7 +51,7 @@ from .right_of_way import right_of_way_edges
 from .types import Route
 from .zones import zone_features
 
-__all__ = ["E_MAX_SEGMENT_M", "RouteResult", "RouteSetResult", "evaluate_route", "resolve_zone_thresholds"]
+__all__ = ["E_MAX_SEGMENT_M", "evaluate_route", "resolve_zone_thresholds"]
 
 E_MAX_SEGMENT_M = 10.0
 """Longest segment of the electric charge simulation [m].
@@ -67,94 +67,6 @@ SET_ORDER = ("path", "lateral_profile", "receptors", "grid", "right_of_way")
 
 PATH_DENSIFY_DEG = 1e-4
 """Largest vertex spacing of a lon/lat path before it is transformed (about 11 m) [deg]."""
-
-
-@dataclass(frozen=True)
-class RouteSetResult:
-    """Fields on one evaluation set.
-
-    Attributes
-    ----------
-    kind : {"path", "lateral_profile", "receptors", "grid", "right_of_way"}
-    field : FieldResult
-        ``points_m`` (n, 3) in the working metre plane [m]; E [V/m] and B [T] phasors (n, 3).
-    x, y : ndarray, shape (n,)
-        Positions in the request CRS (metres, or longitude/latitude in degrees).
-    distance_m : ndarray or None
-        Path: distance along the path from its first position [m]; right-of-way:
-        distance along the edge from its start.
-    offset_m : ndarray or None
-        Lateral profile: offset from the centre line, + right [m]; right-of-way: the
-        offset of the point's edge.
-    ids, names : tuple of str or None
-        Receptors: id and name of each point.
-    grid : GridAxes or None
-        Grid: axes in the working plane; per-point arrays reshape to ``grid.shape``.
-    chainage_m : ndarray or None
-        Right-of-way: chainage of the nearest centre-line point [m].
-    edges : tuple of str or None
-        Right-of-way: ``"left"`` or ``"right"`` per point (left edge first).
-    edge_samples : tuple of EdgeSamples or None
-        Right-of-way: both sampled edges with their polyline vertices (working plane).
-    """
-
-    kind: str
-    field: FieldResult
-    x: np.ndarray
-    y: np.ndarray
-    distance_m: np.ndarray | None = None
-    offset_m: np.ndarray | None = None
-    ids: tuple[str, ...] | None = None
-    names: tuple[str, ...] | None = None
-    grid: GridAxes | None = None
-    chainage_m: np.ndarray | None = None
-    edges: tuple[str, ...] | None = None
-    edge_samples: tuple | None = None
-
-
-@dataclass(frozen=True)
-class RouteResult:
-    """Outcome of :func:`evaluate_route`.
-
-    Attributes
-    ----------
-    frequency_hz : float
-    frame : WorkingFrame
-        Request CRS and the metre plane used (``frame.working_crs``).
-    route_m : Route
-        The route with supports in the working plane [m].
-    sets : dict of str -> RouteSetResult
-        Evaluated sets, in the order path, lateral_profile, receptors, grid, right_of_way.
-    combined : FieldResult
-        All evaluated points of all sets, concatenated in that order (for maxima and
-        compliance over everything evaluated); ``slices[kind]`` gives each set's rows.
-    slices : dict of str -> slice
-    zone_thresholds : tuple of Threshold
-        Resolved zone thresholds (empty without zones).
-    zones : dict or None
-        GeoJSON FeatureCollection in the request CRS (:func:`models.route.zones.zone_features`).
-    segment_counts : dict
-        Number of straight segments for B and for E.
-    assumptions : tuple of str
-    """
-
-    frequency_hz: float
-    frame: WorkingFrame
-    route_m: Route
-    sets: dict
-    combined: FieldResult
-    slices: dict
-    zone_thresholds: tuple = ()
-    zones: dict | None = None
-    segment_counts: dict = field(default_factory=dict)
-    assumptions: tuple[str, ...] = ()
-
-    def locate(self, index: int) -> tuple[str, int]:
-        """(set kind, index within the set) of a row of :attr:`combined`."""
-        for kind, sl in self.slices.items():
-            if sl.start <= index < sl.stop:
-                return kind, index - sl.start
-        raise IndexError(index)
 
 
 def resolve_zone_thresholds(entries, frequency_hz: float, *, field: str = "zones.thresholds") -> tuple[Threshold, ...]:
@@ -202,10 +114,10 @@ def resolve_zone_thresholds(entries, frequency_hz: float, *, field: str = "zones
 
 
 def _route_in_plane(route: Route, frame: WorkingFrame) -> Route:
-    xs = [s.x_m for s in route.supports]
-    ys = [s.y_m for s in route.supports]
+    xs = [s.x for s in route.supports]
+    ys = [s.y for s in route.supports]
     xw, yw = frame.to_working(xs, ys, "route.supports")
-    supports = tuple(dataclasses.replace(s, x_m=float(x), y_m=float(y)) for s, x, y in zip(route.supports, xw, yw))
+    supports = tuple(dataclasses.replace(s, x=float(x), y=float(y)) for s, x, y in zip(route.supports, xw, yw))
     return dataclasses.replace(route, supports=supports)
 
 
@@ -255,7 +167,7 @@ def evaluate_route(
     soil_resistivity_ohm_m: float | None = None,
     max_points: int | None = None,
     tolerance_m: float = DEFAULT_TOLERANCE_M,
-) -> RouteResult:
+) -> Evaluation:
     """Electric and magnetic fields of a route on its evaluation sets, and exposure zones.
 
     Parameters
@@ -280,7 +192,11 @@ def evaluate_route(
 
     Returns
     -------
-    RouteResult
+    Evaluation
+        ``geometry == "route"``; one set per requested kind, named and with the role
+        ``path``, ``lateral_profile``, ``receptors``, ``grid``, ``right_of_way`` (in that
+        order), each with its positions in the request CRS (``x``, ``y``); ``frame``,
+        ``route_m``, ``zone_thresholds``, ``zones`` and ``segment_counts`` filled in.
 
     Raises
     ------
@@ -302,7 +218,7 @@ def evaluate_route(
     --------
     >>> from models.geometry import Bundle
     >>> from models.route.types import RouteCircuit, RouteConductor, Support
-    >>> from models.route.evaluation import LateralProfileSet
+    >>> from models.route.sets import LateralProfileSet
     >>> c = RouteCircuit("c1", "overhead", 132.0, 400.0,
     ...     (RouteConductor("L1", -4, 15, 4.0), RouteConductor("L2", 0, 15, 4.0),
     ...      RouteConductor("L3", 4, 15, 4.0)), Bundle(0.025))
@@ -320,7 +236,7 @@ def evaluate_route(
         raise EngineInputError("zones", "Exposure zones are contoured from the grid evaluation set; add a 'grid'.")
     if len(route.supports) < 2:
         raise must_be("route.supports", "at least 2 supports", len(route.supports))
-    frame = working_frame(crs, [s.x_m for s in route.supports], [s.y_m for s in route.supports])
+    frame = working_frame(crs, [s.x for s in route.supports], [s.y for s in route.supports])
     route_m = _route_in_plane(route, frame)
     zone_thresholds = (resolve_zone_thresholds(evaluation.zones.thresholds, f)
                        if evaluation.zones is not None else ())
@@ -366,6 +282,8 @@ def evaluate_route(
             "offset_m": np.concatenate([np.full(len(e.distance_m), e.offset_m) for e in edges]),
             "edges": tuple(e.edge for e in edges for _ in range(len(e.distance_m))),
             "edge_samples": edges,
+            "note": (f"Edges sampled every {evaluation.right_of_way.step_m:g} m along their whole length at "
+                     f"{evaluation.right_of_way.height_m:g} m above ground; the values are the largest along each edge."),
         }
 
     slices: dict[str, slice] = {}
@@ -402,31 +320,31 @@ def evaluate_route(
 
     assumptions = _assumptions(frame, f, rho, route_m, evaluation, grid, tolerance_m)
     combined = FieldResult(points, f, e, b, assumptions)
-    sets: dict[str, RouteSetResult] = {}
+    sets: dict[str, EvaluationSet] = {}
     for kind, sl in slices.items():
         piece = pieces[kind]
-        fr = FieldResult(points[sl], f, e[sl], b[sl], assumptions)
+        fr = sub_result(combined, sl)
         if kind == "receptors":
             x, y = piece["x"].copy(), piece["y"].copy()
         elif kind == "grid" and not frame.transforms:
             x, y = points[sl, 0].copy(), points[sl, 1].copy()
         else:
             x, y = frame.to_request(points[sl, 0], points[sl, 1])
-        sets[kind] = RouteSetResult(kind, fr, x, y, distance_m=piece.get("distance_m"), offset_m=piece.get("offset_m"),
-                                    ids=piece.get("ids"), names=piece.get("names"), grid=piece.get("grid"),
-                                    chainage_m=piece.get("chainage_m"), edges=piece.get("edges"),
-                                    edge_samples=piece.get("edge_samples"))
+        sets[kind] = EvaluationSet(kind, kind, sl, fr, x=x, y=y, distance_m=piece.get("distance_m"),
+                                   offset_m=piece.get("offset_m"), ids=piece.get("ids"), names=piece.get("names"),
+                                   grid=piece.get("grid"), chainage_m=piece.get("chainage_m"),
+                                   edges=piece.get("edges"), edge_samples=piece.get("edge_samples"),
+                                   note=piece.get("note", ""))
 
     zones = None
     if evaluation.zones is not None:
         g = sets["grid"].field
         zones = zone_features(zone_thresholds, grid, g.e_rms_v_per_m.reshape(grid.shape),
                               g.b_rms_t.reshape(grid.shape), route_m=route_m, frame=frame)
-    return RouteResult(
-        frequency_hz=f, frame=frame, route_m=route_m, sets=sets, combined=combined, slices=slices,
-        zone_thresholds=zone_thresholds, zones=zones,
+    return Evaluation(
+        geometry="route", frequency_hz=f, combined=combined, sets=sets, assumptions=assumptions,
+        frame=frame, route_m=route_m, zone_thresholds=zone_thresholds, zones=zones,
         segment_counts={"b": int(len(seg_b.start_m)), "e": int(len(seg_e.start_m))},
-        assumptions=assumptions,
     )
 
 

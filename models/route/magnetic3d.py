@@ -65,7 +65,7 @@ _K = MU0_H_PER_M / (4.0 * math.pi)
 # --------------------------------------------------------------------------- input handling
 
 
-def _segment_arrays(segments, current_a=None, radius_m=None):
+def segment_arrays(segments, current_a=None, radius_m=None):
     """(start, end, current, radius) arrays from a SegmentSet or from arrays."""
     if isinstance(segments, SegmentSet):
         start = np.asarray(segments.start_m, dtype=float)
@@ -99,7 +99,7 @@ _INSIDE_BLOCK = 16
 #: Serialises kernel calls within a process: each call already uses every numba thread,
 #: and numba's fallback "workqueue" threading layer (used when OpenMP/TBB are missing)
 #: aborts on concurrent calls from several Python threads.
-_KERNEL_LOCK = threading.Lock()
+KERNEL_LOCK = threading.Lock()
 
 
 def _link_boxes(verts, link_rad, block):
@@ -123,7 +123,7 @@ def _link_boxes(verts, link_rad, block):
 _SWEEP = 4  # links per sweep of the field kernel
 
 
-def _runs(start, end, cur):
+def segment_runs(start, end, cur):
     """Group segments into runs: continuous polylines of one current, padded to whole sweeps.
 
     Returns ``(verts, run_start, run_links, run_current, run_box)``: run r's links join
@@ -214,7 +214,7 @@ def flux_density_segments_numpy(points_m, segments, current_a=None, radius_m=Non
     complex ndarray, shape (n, 3)
         B phasors [T]; 0 on a segment's line (where eq. (1) is singular).
     """
-    start, end, cur, _ = _segment_arrays(segments, current_a, radius_m)
+    start, end, cur, _ = segment_arrays(segments, current_a, radius_m)
     p = np.asarray(points_m, dtype=float).reshape(-1, 3)
     out = np.zeros((len(p), 3), dtype=complex)
     ic = np.stack([cur.real, cur.imag], axis=1)  # (m, 2)
@@ -614,12 +614,12 @@ def flux_density_segments(
         raise must_be("points_m", "an array of shape (n, 3)", p.shape, GeometryError)
     if not np.all(np.isfinite(p)):
         raise must_be("points_m", "finite", "non-finite values", GeometryError)
-    start, end, cur, rad = _segment_arrays(segments, current_a, radius_m)
+    start, end, cur, rad = segment_arrays(segments, current_a, radius_m)
     verts, link_cur, link_rad = _polylines(start, end, cur, rad)
     vx, vy, vz = (np.ascontiguousarray(verts[:, k]) for k in range(3))
     r2 = np.ascontiguousarray(link_rad**2)
     box = _link_boxes(verts, link_rad, _INSIDE_BLOCK)
-    rverts, run_start, run_links, run_cur, run_box = _runs(start, end, cur)
+    rverts, run_start, run_links, run_cur, run_box = segment_runs(start, end, cur)
     wx, wy, wz = (np.ascontiguousarray(rverts[:, k]) for k in range(3))
     run_re = np.ascontiguousarray(run_cur.real)
     run_im = np.ascontiguousarray(run_cur.imag)
@@ -633,7 +633,7 @@ def flux_density_segments(
     for lo in range(0, n, chunk_size):
         hi = min(lo + chunk_size, n)
         qx, qy, qz = (np.ascontiguousarray(p[lo:hi, k]) for k in range(3))
-        with _KERNEL_LOCK, parallel_chunksize(1):  # tiles handed out one at a time: a busy core takes fewer
+        with KERNEL_LOCK, parallel_chunksize(1):  # tiles handed out one at a time: a busy core takes fewer
             field_kernel(qx, qy, qz, wx, wy, wz, run_start, run_links, run_re, run_im, run_box, _K, ov[lo:hi],
                          int(tile))
             inside_kernel(qx, qy, qz, vx, vy, vz, r2, box, _INSIDE_BLOCK, int(tile), hit[lo:hi])

@@ -7,7 +7,7 @@ positive to the right looking from the first support towards the last
     V_i = S_i + offset_m * v_i
 
 at every support i, with ``v_i`` the offset vector of
-:func:`models.route.geometry.offset_vectors` (``"perpendicular"`` convention): the
+:func:`models.route.alignment.offset_vectors` (``"perpendicular"`` convention): the
 right normal at the first and last support and, at an angle support, the bisector
 scaled by 1 / cos(delta / 2).  Every straight piece of the edge is then parallel to
 its span at exactly ``offset_m`` (the mitred parallel, as the conductor attachments),
@@ -15,7 +15,7 @@ so a mid-span cross-section of the route shows the edges where a 2-D cross-secti
 with the same ``right_of_way`` puts them.
 
 The samples of an edge lie every ``step_m`` along the edge itself (both ends
-included, :func:`models.route.evaluation.stations`) at ``height_m`` above the flat
+included, :func:`models.route.alignment.stations`) at ``height_m`` above the flat
 ground plane z = 0 (the route engine's ground model).  Their ``chainage_m`` is the
 chainage of the nearest point of the centre line: the foot of the perpendicular on
 the span, or the support itself for the samples beyond the end of a span on the
@@ -34,7 +34,8 @@ import shapely
 from shapely.geometry import LineString
 
 from ..errors import EngineInputError, must_be
-from .geometry import offset_vectors, span_directions, support_chainage_m
+from ..evaluation import DEFAULT_EDGE_HEIGHT_M, EDGES
+from .alignment import offset_vectors, span_directions, stations, support_chainage_m
 from .types import Route
 
 __all__ = ["DEFAULT_EDGE_HEIGHT_M", "DEFAULT_EDGE_STEP_M", "EDGES", "EdgeSamples", "RightOfWaySet",
@@ -42,11 +43,6 @@ __all__ = ["DEFAULT_EDGE_HEIGHT_M", "DEFAULT_EDGE_STEP_M", "EDGES", "EdgeSamples
 
 DEFAULT_EDGE_STEP_M = 5.0
 """Default spacing of the samples along a right-of-way edge [m]."""
-
-DEFAULT_EDGE_HEIGHT_M = 1.0
-"""Default height of the edge samples above ground [m] (common practice: 1 m)."""
-
-EDGES = ("left", "right")
 
 
 @dataclass(frozen=True)
@@ -136,7 +132,7 @@ def edge_vertices_m(route_m: Route, offset_m: float, *, field: str = "right_of_w
     off = float(offset_m)
     if not math.isfinite(off):
         raise must_be(field, "a finite offset in metres", offset_m)
-    xy = np.array([[s.x_m, s.y_m] for s in route_m.supports], dtype=float)
+    xy = np.array([[s.x, s.y] for s in route_m.supports], dtype=float)
     vertices = xy + off * offset_vectors(route_m, "perpendicular")
     along = np.sum(np.diff(vertices, axis=0) * span_directions(route_m), axis=1)
     bad = np.flatnonzero(~(along > 1e-9))
@@ -152,7 +148,7 @@ def _nearest_chainage(route_m: Route, points_xy: np.ndarray, span_index: np.ndar
     """Chainage of the nearest centre-line point of edge samples on the edge piece of ``span_index``."""
     ch = support_chainage_m(route_m)
     u = span_directions(route_m)
-    xy = np.array([[s.x_m, s.y_m] for s in route_m.supports], dtype=float)
+    xy = np.array([[s.x, s.y] for s in route_m.supports], dtype=float)
     foot = np.sum((points_xy - xy[span_index]) * u[span_index], axis=1)
     return ch[span_index] + np.clip(foot, 0.0, ch[span_index + 1] - ch[span_index])
 
@@ -192,7 +188,6 @@ def right_of_way_edges(route_m: Route, spec: RightOfWaySet, *, max_points: int |
     >>> left.chainage_m.tolist(), left.distance_m.tolist()
     ([0.0, 8.0, 16.0, 20.0], [0.0, 8.0, 16.0, 20.0])
     """
-    from .evaluation import stations  # the evaluation sets' station rule (both ends included)
 
     left, right = float(spec.left_m), float(spec.right_m)
     for name, value in (("left_m", left), ("right_m", right)):

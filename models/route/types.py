@@ -23,11 +23,16 @@ from ..geometry import Bundle, CurrentPhasor, VoltagePhasor
 
 @dataclass(frozen=True)
 class Support:
-    """A support (tower/pole) in plan: position [m] and ground elevation [m]."""
+    """A support (tower/pole) in plan: position and ground elevation [m].
+
+    ``x``, ``y`` are in the request CRS (metres of a projected CRS, or longitude and
+    latitude in degrees); the route engine's working copy
+    (:attr:`models.evaluation.Evaluation.route_m`) holds them in working-plane metres.
+    """
 
     id: str
-    x_m: float
-    y_m: float
+    x: float
+    y: float
     ground_elevation_m: float = 0.0
 
 

@@ -45,8 +45,8 @@ from shapely.geometry.polygon import orient
 
 from .crs import WorkingFrame
 from ..catalogue import SI_UNIT, Threshold
-from .evaluation import GridAxes
-from .geometry import frame_at_chainage, route_centre_line, support_chainage_m
+from .sets import GridAxes
+from .alignment import frame_at_chainage, route_centre_line, support_chainage_m
 from .types import Route
 
 
@@ -120,7 +120,7 @@ def exceedance_polygons(axes: GridAxes, values: np.ndarray, threshold: float) ->
 
     Examples
     --------
-    >>> from models.route.evaluation import grid_axes
+    >>> from models.route.sets import grid_axes
     >>> g = grid_axes((-10.0, -10.0, 10.0, 10.0), 0.5, 1.0)
     >>> xx, yy = np.meshgrid(g.x_m, g.y_m)
     >>> disc = exceedance_polygons(g, 25.0 - (xx**2 + yy**2), 0.0)    # r < 5

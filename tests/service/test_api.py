@@ -16,7 +16,8 @@ import pytest
 import scipy.constants
 
 from service import create_app, storage
-from service.schemas import load_assessment_request, to_plain
+from service.schema_fields import to_plain
+from service.schemas import load_assessment_request
 
 DEMO = Path(__file__).resolve().parents[2] / "service" / "examples" / "demo_cross_section.json"
 PROBLEM = "application/problem+json"

@@ -85,7 +85,7 @@ def test_upgrade_of_empty_database_equals_the_models(engine):
 
 
 def test_legacy_database_is_stamped_upgraded_and_keeps_its_chain(engine, db_url):
-    from service.assessment import build_report
+    from service.report import build_report
     from service.schemas import load_assessment_request
 
     legacy_schema(engine)

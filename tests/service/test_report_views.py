@@ -163,12 +163,12 @@ def test_report_responses_match_the_openapi_document(client, stored):
 def stored_route(client) -> dict:
     """The invented lon/lat demo route (grid coarsened to 10 m), stored the way POST stores a report."""
     from service import storage
-    from service.route_assessment import build_route_report
+    from service.report import build_report
     from service.route_schemas import load_route_request
 
     body = json.loads((DEMO.parent / "demo_route_lonlat.json").read_text(encoding="utf-8"))
     body["grid"]["resolution_m"] = 10.0
-    report = build_route_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
+    report = build_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
     app = client.application
     session = storage.storage_of(app).sessionmaker()
     with session.begin():

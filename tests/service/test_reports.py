@@ -305,12 +305,12 @@ def test_format_number(value, text):
 @pytest.fixture(scope="module", params=["demo_route_lonlat", "demo_route"])
 def real_route_report(request) -> dict:
     """A route report from the route builder (the invented demo route), grid coarsened to 10 m for speed."""
-    from service.route_assessment import build_route_report
+    from service.report import build_report
     from service.route_schemas import load_route_request
 
     body = json.loads((DEMO.parent / f"{request.param}.json").read_text(encoding="utf-8"))
     body["grid"]["resolution_m"] = 10.0
-    rep = build_route_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
+    rep = build_report(load_route_request(body, max_route_points=200_000, max_conductors=64))
     return {"id": "00000000-0000-4000-8000-000000000003", "created_at": "2026-12-01T00:00:00.000000Z",
             **rep, "digest": "0" * 64}
 

@@ -18,7 +18,8 @@ import scipy.constants
 import yaml
 
 from models.cross_section import evaluate_cross_section
-from service.schemas import RightOfWaySchema, load_assessment_request, to_plain
+from service.schema_fields import to_plain
+from service.schemas import RightOfWaySchema, load_assessment_request
 
 from .test_api import DEMO, PROBLEM, small_body, stored_count
 from .test_openapi import SPEC_PATH, check_response

@@ -173,15 +173,15 @@ def _scaled_engine(monkeypatch, factor: float) -> None:
     """Make the engine's B come out ``factor`` times larger (a changed engine)."""
     import dataclasses
 
-    from service import assessment
+    from models import section_sets
 
-    original = assessment.evaluate_cross_section
+    original = section_sets.evaluate_cross_section
 
     def changed(*args, **kwargs):
         result = original(*args, **kwargs)
         return dataclasses.replace(result, b_phasor_t=result.b_phasor_t * factor)
 
-    monkeypatch.setattr(assessment, "evaluate_cross_section", changed)
+    monkeypatch.setattr(section_sets, "evaluate_cross_section", changed)
 
 
 def test_changed_engine_lists_the_values_that_moved(client, monkeypatch):

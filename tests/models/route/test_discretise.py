@@ -24,7 +24,7 @@ from models.errors import GeometryError
 from models.geometry import Bundle, Circuit, Conductor, CrossSection, CurrentPhasor, EarthWire
 from models.route.catenary import CatenarySpan
 from models.route.discretise import discretise_route, segments_for_span
-from models.route.geometry import strung_wires
+from models.route.alignment import strung_wires
 from models.route.magnetic3d import flux_density_segments
 from models.route.types import Route, RouteCircuit, RouteConductor, RouteEarthWire, Support
 

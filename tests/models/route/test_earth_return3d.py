@@ -31,7 +31,7 @@ from models.magnetic import complex_depth_m
 from models.route.discretise import discretise_route
 from models.route.earth_return3d import image_flux_density_segments, image_flux_density_segments_numpy
 from models.route.evaluate import evaluate_route
-from models.route.evaluation import EvaluationSets, GridSet, LateralProfileSet, Receptor
+from models.route.sets import EvaluationSets, GridSet, LateralProfileSet, Receptor
 from models.route.magnetic3d import flux_density_segments
 from models.route.types import Route, RouteCircuit, RouteConductor, RouteEarthWire, Support
 from models.units import MU0_H_PER_M

@@ -24,7 +24,7 @@ from models.cross_section import evaluate_cross_section
 from models.errors import EngineInputError
 from models.geometry import Bundle, Circuit, Conductor, CrossSection, EarthWire
 from models.route.evaluate import evaluate_route
-from models.route.evaluation import (
+from models.route.sets import (
     CustomZoneLimit,
     EvaluationSets,
     GridSet,
@@ -140,10 +140,10 @@ def test_projected_and_lon_lat_twins_agree():
     to_ll = Transformer.from_crs("EPSG:32632", "EPSG:4326", always_xy=True)
 
     def shift(s: Support) -> Support:
-        return Support(s.id, s.x_m + east0, s.y_m + north0, s.ground_elevation_m)
+        return Support(s.id, s.x + east0, s.y + north0, s.ground_elevation_m)
 
     r_utm = Route(tuple(shift(s) for s in r_m.supports), r_m.circuits, r_m.earth_wires)
-    lon, lat = to_ll.transform([s.x_m for s in r_utm.supports], [s.y_m for s in r_utm.supports])
+    lon, lat = to_ll.transform([s.x for s in r_utm.supports], [s.y for s in r_utm.supports])
     r_ll = Route(tuple(Support(s.id, float(x), float(y), s.ground_elevation_m)
                        for s, x, y in zip(r_utm.supports, lon, lat)), r_m.circuits, r_m.earth_wires)
 
@@ -245,7 +245,7 @@ def test_bad_input_names_the_field(sets, kwargs, field):
 def test_geographic_path_out_of_range_named():
     to_ll = Transformer.from_crs("EPSG:32632", "EPSG:4326", always_xy=True)
     r = _angle_route()
-    lon, lat = to_ll.transform([s.x_m + 500_000.0 for s in r.supports], [s.y_m + 5_000_000.0 for s in r.supports])
+    lon, lat = to_ll.transform([s.x + 500_000.0 for s in r.supports], [s.y + 5_000_000.0 for s in r.supports])
     r_ll = Route(tuple(Support(s.id, float(x), float(y)) for s, x, y in zip(r.supports, lon, lat)), r.circuits, r.earth_wires)
     bad = EvaluationSets(path=PathSet(LineString([(9.0, 45.1), (190.0, 45.1)]), 5.0, 1.0))
     with pytest.raises(EngineInputError) as err:

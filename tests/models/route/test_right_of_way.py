@@ -23,7 +23,7 @@ from shapely.geometry import LineString, Point
 from models.errors import EngineInputError
 from models.geometry import Bundle
 from models.route.evaluate import evaluate_route
-from models.route.evaluation import EvaluationSets, PathSet
+from models.route.sets import EvaluationSets, PathSet
 from models.route.right_of_way import RightOfWaySet, edge_vertices_m, right_of_way_edges
 from models.route.types import Route, RouteCircuit, RouteConductor, Support
 
@@ -40,7 +40,7 @@ def _route(deviations_deg=(30.0, -50.0), span_m=200.0) -> Route:
 
 
 def _spans(route: Route) -> list[LineString]:
-    xy = [(s.x_m, s.y_m) for s in route.supports]
+    xy = [(s.x, s.y) for s in route.supports]
     return [LineString(xy[i:i + 2]) for i in range(len(xy) - 1)]
 
 
@@ -53,7 +53,7 @@ def _extended(span: LineString, factor: float = 50.0) -> LineString:
 @pytest.mark.parametrize("offset", [-30.0, -7.5, 12.0, 40.0])
 def test_edge_vertices_are_the_mitred_parallel_of_geos(offset):
     route = _route()
-    centre = LineString([(s.x_m, s.y_m) for s in route.supports])
+    centre = LineString([(s.x, s.y) for s in route.supports])
     v = edge_vertices_m(route, offset)
     # shapely: positive distance offsets to the left; our offsets are + right
     ref = centre.offset_curve(-offset, join_style="mitre", mitre_limit=10.0)
@@ -81,7 +81,7 @@ def test_edge_vertex_at_an_angle_support_lies_on_the_bisector(offset):
 def test_samples_lie_at_the_offset_on_the_right_side_every_step(which):
     route = _route()
     spans = _spans(route)
-    centre = LineString([(s.x_m, s.y_m) for s in route.supports])
+    centre = LineString([(s.x, s.y) for s in route.supports])
     step = 7.0
     edge = right_of_way_edges(route, RightOfWaySet(-30.0, 25.0, step, 1.5))[which]
     offset = (-30.0, 25.0)[which]
@@ -110,7 +110,7 @@ def test_samples_lie_at_the_offset_on_the_right_side_every_step(which):
         # where the nearest centre-line point is the support: at most |offset| / cos(delta / 2) there
         dc = centre.distance(Point(p))
         assert abs(offset) - 1e-9 <= dc <= abs(offset) * math.sqrt(1.0 + tan.max() ** 2) + 1e-9
-        if not any(Point(p).distance(Point(s.x_m, s.y_m)) < abs(offset) * np.hypot(1.0, t) + 1e-9
+        if not any(Point(p).distance(Point(s.x, s.y)) < abs(offset) * np.hypot(1.0, t) + 1e-9
                    for s, t in zip(route.supports[1:3], tan)):
             assert dc == pytest.approx(abs(offset), abs=1e-9)
     # chainage = distance along the centre line of its nearest point (shapely project)

@@ -26,7 +26,7 @@ from models.compliance import compliance_distances
 from models.cross_section import evaluate_cross_section
 from models.geometry import Bundle, Circuit, Conductor, CrossSection
 from models.route.crs import working_frame
-from models.route.evaluation import grid_axes
+from models.route.sets import grid_axes
 from models.route.types import Route, Support
 from models.route.zones import exceedance_polygons, zone_features
 

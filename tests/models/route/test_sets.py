@@ -1,4 +1,4 @@
-"""Evaluation sets -> observation points (models.route.evaluation).
+"""Evaluation sets -> observation points (models.route.sets).
 
 Independent references: shapely's own linear referencing (``LineString.project``,
 GEOS) for distances along a path and distances to the route; plane geometry for the
@@ -14,7 +14,7 @@ import pytest
 from shapely.geometry import LineString, Point
 
 from models.errors import EngineInputError
-from models.route.evaluation import (
+from models.route.sets import (
     LateralProfileSet,
     grid_axes,
     lateral_profile_points,
@@ -86,7 +86,7 @@ def test_lateral_profile_on_second_span_is_perpendicular_to_it():
     pts, off = lateral_profile_points(route, LateralProfileSet(300.0, -10.0, 10.0, 10.0, 1.0))
     centre = pts[1, :2]
     s1, s2 = route.supports[1], route.supports[2]
-    second_span = LineString([(s1.x_m, s1.y_m), (s2.x_m, s2.y_m)])
+    second_span = LineString([(s1.x, s1.y), (s2.x, s2.y)])
     assert second_span.distance(Point(*centre)) < 1e-9
     # distance of each profile point to the (extended) span line equals |offset| (GEOS distance)
     long_span = LineString([(200.0 - 1000 / math.sqrt(2), -1000 / math.sqrt(2)), (200.0 + 1000 / math.sqrt(2), 1000 / math.sqrt(2))])

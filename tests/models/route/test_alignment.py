@@ -1,7 +1,7 @@
 """Route plan geometry: bisector offsets, chainage, attachment points, validation.
 
 References: plane geometry checked with shapely (distances of the conductor
-lines from the centre line), and the convention stated in models/route/geometry.py
+lines from the centre line), and the convention stated in models/route/alignment.py
 (offset along the bisector, scaled so the perpendicular spacing is kept: common practice).
 """
 
@@ -15,7 +15,7 @@ from shapely.geometry import LineString, Point
 
 from models.errors import GeometryError, LoadingError
 from models.geometry import Bundle, CurrentPhasor
-from models.route.geometry import (
+from models.route.alignment import (
     attachment_points_m,
     deviation_angles_deg,
     frame_at_chainage,
@@ -52,7 +52,7 @@ def test_perpendicular_convention_keeps_the_offset_in_both_spans(deviation):
     # With the default convention every span's conductor is parallel to the centre line at
     # exactly offset_m (shapely distance from points of the conductor to the span's centre line).
     route = _angle_route(deviation)
-    centre = np.array([[s.x_m, s.y_m] for s in route.supports])
+    centre = np.array([[s.x, s.y] for s in route.supports])
     for offset in (-7.5, 4.0):
         att = attachment_points_m(route, offset, 20.0)
         for i in range(2):
@@ -178,7 +178,7 @@ def _route_with(conductor=None, circuit=None, supports=None, earth=()):
         pytest.param(_route_with(supports=(Support("a", 0, 0),)), "route.supports", GeometryError, id="one-support"),
         pytest.param(_route_with(supports=(Support("a", 0, 0), Support("a", 300, 0))), "route.supports[1].id",
                      GeometryError, id="duplicate-id"),
-        pytest.param(_route_with(supports=(Support("a", 0, 0), Support("b", math.nan, 0))), "route.supports[1].x_m",
+        pytest.param(_route_with(supports=(Support("a", 0, 0), Support("b", math.nan, 0))), "route.supports[1].x",
                      GeometryError, id="nan-position"),
         pytest.param(_route_with(earth=(RouteEarthWire(0.0, 30.0, 0.0, 4.0),)), "route.earth_wires[0].diameter_m",
                      GeometryError, id="earth-wire-diameter"),

@@ -48,7 +48,7 @@ import numpy as np
 from shapely.geometry import LineString
 
 from ..errors import GeometryError, must_be
-from ..sources import _check_overlaps, _check_phasor, _finite, validate_circuit
+from ..sources import check_overlaps, check_phasor, check_finite, validate_circuit
 from .catenary import CatenarySpan
 from .types import Attachment, Route
 
@@ -74,7 +74,7 @@ MAX_DEVIATION_DEG = 135.0
 
 
 def _support_xy(route: Route) -> np.ndarray:
-    return np.array([[s.x_m, s.y_m] for s in route.supports], dtype=float).reshape(-1, 2)
+    return np.array([[s.x, s.y] for s in route.supports], dtype=float).reshape(-1, 2)
 
 
 def span_directions(route: Route) -> np.ndarray:
@@ -295,8 +295,8 @@ class StrungWire:
 def _attachment_arrays(path: str, wire, n_supports: int) -> tuple[np.ndarray, np.ndarray]:
     """Per-support offsets and heights of a conductor/earth wire, checked finite."""
     if wire.attachments is None:
-        off = _finite(f"{path}.offset_m", wire.offset_m, "in metres", GeometryError)
-        hgt = _finite(f"{path}.height_m", wire.height_m, "in metres", GeometryError)
+        off = check_finite(f"{path}.offset_m", wire.offset_m, "in metres", GeometryError)
+        hgt = check_finite(f"{path}.height_m", wire.height_m, "in metres", GeometryError)
         return np.full(n_supports, off), np.full(n_supports, hgt)
     att = tuple(wire.attachments)
     if len(att) != n_supports:
@@ -307,8 +307,8 @@ def _attachment_arrays(path: str, wire, n_supports: int) -> tuple[np.ndarray, np
     for i, a in enumerate(att):
         if not isinstance(a, Attachment):
             raise must_be(f"{path}.attachments[{i}]", "an Attachment", a, GeometryError)
-        off[i] = _finite(f"{path}.attachments[{i}].offset_m", a.offset_m, "in metres", GeometryError)
-        hgt[i] = _finite(f"{path}.attachments[{i}].height_m", a.height_m, "in metres", GeometryError)
+        off[i] = check_finite(f"{path}.attachments[{i}].offset_m", a.offset_m, "in metres", GeometryError)
+        hgt[i] = check_finite(f"{path}.attachments[{i}].height_m", a.height_m, "in metres", GeometryError)
     return off, hgt
 
 
@@ -316,7 +316,7 @@ def _spans_for(path: str, wire, attachment_m: np.ndarray, underground: bool) -> 
     """Catenary of every span from the wire's sag or tension/weight, with input checks."""
     tension = getattr(wire, "horizontal_tension_n", None)
     weight = getattr(wire, "weight_n_per_m", None)
-    sag = _finite(f"{path}.sag_m", wire.sag_m, ">= 0 m", GeometryError)
+    sag = check_finite(f"{path}.sag_m", wire.sag_m, ">= 0 m", GeometryError)
     if sag < 0:
         raise must_be(f"{path}.sag_m", ">= 0 m", wire.sag_m, GeometryError)
     if (tension is None) != (weight is None):
@@ -326,7 +326,7 @@ def _spans_for(path: str, wire, attachment_m: np.ndarray, underground: bool) -> 
     use_tension = tension is not None
     if use_tension:
         for name, value in (("horizontal_tension_n", tension), ("weight_n_per_m", weight)):
-            v = _finite(f"{path}.{name}", value, "> 0", GeometryError)
+            v = check_finite(f"{path}.{name}", value, "> 0", GeometryError)
             if v <= 0:
                 raise must_be(f"{path}.{name}", "> 0", value, GeometryError)
         if sag != 0.0:
@@ -395,8 +395,8 @@ def strung_wires(route: Route, *, convention: OffsetConvention = "perpendicular"
         raise must_be("route.supports", "a list of at least 2 supports", f"{len(supports)} supports", GeometryError)
     ids = set()
     for i, s in enumerate(supports):
-        for name in ("x_m", "y_m", "ground_elevation_m"):
-            _finite(f"route.supports[{i}].{name}", getattr(s, name), "in metres", GeometryError)
+        for name in ("x", "y", "ground_elevation_m"):
+            check_finite(f"route.supports[{i}].{name}", getattr(s, name), "in metres", GeometryError)
         if s.id in ids:
             raise must_be(f"route.supports[{i}].id", "unique", s.id, GeometryError)
         ids.add(s.id)
@@ -422,18 +422,18 @@ def strung_wires(route: Route, *, convention: OffsetConvention = "perpendicular"
         underground = circuit.kind == "underground"
         for k, conductor in enumerate(circuit.conductors):
             kpath = f"{cpath}.conductors[{k}]"
-            _check_phasor(f"{kpath}.current", conductor.current, "magnitude_a")
-            _check_phasor(f"{kpath}.voltage_to_ground", conductor.voltage_to_ground, "magnitude_kv")
+            check_phasor(f"{kpath}.current", conductor.current, "magnitude_a")
+            check_phasor(f"{kpath}.voltage_to_ground", conductor.voltage_to_ground, "magnitude_kv")
             wires.append(_hang(route, kpath, conductor, outer, underground, convention, envelopes))
     for j, ew in enumerate(route.earth_wires):
         wpath = f"route.earth_wires[{j}]"
-        d = _finite(f"{wpath}.diameter_m", ew.diameter_m, "> 0 m", GeometryError)
+        d = check_finite(f"{wpath}.diameter_m", ew.diameter_m, "> 0 m", GeometryError)
         if d <= 0:
             raise must_be(f"{wpath}.diameter_m", "> 0 m", ew.diameter_m, GeometryError)
-        _check_phasor(f"{wpath}.current", ew.current, "magnitude_a")
+        check_phasor(f"{wpath}.current", ew.current, "magnitude_a")
         wires.append(_hang(route, wpath, ew, d / 2.0, False, convention, envelopes))
     for env in envelopes:
-        _check_overlaps(env)
+        check_overlaps(env)
     return tuple(wires)
 
 
@@ -465,3 +465,33 @@ def _hang(route, path, wire, outer, underground, convention, envelopes) -> Strun
                     f"lowest point z = {z_low:.6g} m.",
                 )
     return StrungWire(path, off, hgt, att, spans, float(outer))
+
+
+def stations(length_m: float, step_m: float) -> np.ndarray:
+    """Stations 0, step, 2 step, ... along a length, the end always included.
+
+    Parameters
+    ----------
+    length_m : float
+        Length to sample [m], >= 0.
+    step_m : float
+        Spacing [m], > 0.  The last interval is shorter when ``length_m`` is not a
+        multiple of ``step_m``; a station closer than 1e-9 step to the end is merged
+        into it.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Increasing distances [m] from 0 to ``length_m`` inclusive.
+
+    Examples
+    --------
+    >>> stations(10.0, 4.0)
+    array([ 0.,  4.,  8., 10.])
+    >>> stations(0.3, 0.1)
+    array([0. , 0.1, 0.2, 0.3])
+    """
+    n_full = int(math.floor(length_m / step_m + 1e-9))
+    d = step_m * np.arange(n_full + 1, dtype=float)
+    d = d[d < length_m - 1e-9 * step_m]
+    return np.append(d, length_m)

@@ -28,7 +28,7 @@ import shapely
 from shapely.geometry import LineString
 
 from ..errors import EngineInputError, must_be
-from .geometry import frame_at_chainage, support_chainage_m
+from .alignment import frame_at_chainage, stations, support_chainage_m
 from .right_of_way import RightOfWaySet
 from .types import Route
 
@@ -145,36 +145,6 @@ def _height(value: float, field_name: str) -> None:
         raise must_be(field_name, "a finite height >= 0 above ground", value)
 
 
-def stations(length_m: float, step_m: float) -> np.ndarray:
-    """Stations 0, step, 2 step, ... along a length, the end always included.
-
-    Parameters
-    ----------
-    length_m : float
-        Length to sample [m], >= 0.
-    step_m : float
-        Spacing [m], > 0.  The last interval is shorter when ``length_m`` is not a
-        multiple of ``step_m``; a station closer than 1e-9 step to the end is merged
-        into it.
-
-    Returns
-    -------
-    ndarray, shape (n,)
-        Increasing distances [m] from 0 to ``length_m`` inclusive.
-
-    Examples
-    --------
-    >>> stations(10.0, 4.0)
-    array([ 0.,  4.,  8., 10.])
-    >>> stations(0.3, 0.1)
-    array([0. , 0.1, 0.2, 0.3])
-    """
-    n_full = int(math.floor(length_m / step_m + 1e-9))
-    d = step_m * np.arange(n_full + 1, dtype=float)
-    d = d[d < length_m - 1e-9 * step_m]
-    return np.append(d, length_m)
-
-
 def path_points(line_m: LineString, step_m: float, height_m: float, *, max_points: int | None = None,
                 field_prefix: str = "path") -> tuple[np.ndarray, np.ndarray]:
     """Sample a path every ``step_m`` along its length (both ends included).
@@ -244,7 +214,7 @@ def lateral_profile_points(route_m: Route, spec: LateralProfileSet, *, max_point
     Notes
     -----
     The profile runs along the right normal of the span at the chainage
-    (:func:`models.route.geometry.frame_at_chainage`; exactly at an angle support,
+    (:func:`models.route.alignment.frame_at_chainage`; exactly at an angle support,
     the span leaving it).
 
     Examples

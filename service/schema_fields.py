@@ -1,0 +1,216 @@
+"""What every assessment request schema shares: number fields, id checks, limits, load cases.
+
+The geometry schemas (:mod:`service.schemas` for a cross-section,
+:mod:`service.route_schemas` for a route) build on these.  Numbers must be JSON
+numbers: strings, booleans, NaN and ±Infinity are refused (Python's JSON parser
+accepts the bare tokens ``NaN`` and ``Infinity``).  Every schema keeps marshmallow's
+default ``unknown=RAISE``.
+
+Error messages never contain ``{`` or ``}``: marshmallow formats messages with
+``str.format`` and a brace would turn into a placeholder (a 500 instead of a 422).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from collections.abc import Callable, Iterable, Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
+
+from models.catalogue import UNIT_TO_SI
+from models.load_cases import LoadCase
+
+POSITIVE = validate.Range(min=0, min_inclusive=False, error="Must be greater than 0.")
+NON_NEGATIVE = validate.Range(min=0, error="Must be greater than or equal to 0.")
+TEXT = validate.Length(min=1, max=200)
+ID_TEXT = validate.Length(min=1, max=64)
+UNITS = validate.OneOf(list(UNIT_TO_SI))
+"""Units a limit may be given in (the catalogue's; the unit decides E or B)."""
+
+MAX_LOAD_CASES = 16
+"""Load cases per request (besides the base case, the request as given)."""
+
+LOAD_CASE_POINT_FACTOR = 4
+"""(load cases + 1) x points may be at most this many times the per-request point cap."""
+
+
+class FiniteFloat(fields.Float):
+    """A JSON number that is finite: no strings, booleans, NaN or infinities."""
+
+    default_error_messages = {"invalid": "Not a valid number.",
+                              "special": "Must be a finite number (NaN and Infinity are not allowed)."}
+
+    def __init__(self, **kwargs: Any):
+        kwargs.setdefault("allow_nan", False)
+        super().__init__(**kwargs)
+
+    def _deserialize(self, value: Any, attr: str | None, data: Mapping[str, Any] | None, **kwargs: Any) -> float:
+        if isinstance(value, (str, bool)):
+            raise self.make_error("invalid")
+        return super()._deserialize(value, attr, data, **kwargs)
+
+
+def nested_error(path: Iterable[Any], message: str) -> dict:
+    """``{"a": {0: {"id": [message]}}}`` for ``path = ("a", 0, "id")``: a marshmallow error at that field."""
+    out: Any = [message]
+    for key in reversed(tuple(path)):
+        out = {key: out}
+    return out
+
+
+def check_unique(values: Iterable[str], path: Callable[[int], Iterable[Any]], what: str,
+                 taken: Iterable[str] = ()) -> None:
+    """Refuse a value seen before (or in ``taken``) with a 422 at ``path(i)``: "Duplicate <what> 'x'."."""
+    seen = set(taken)
+    for i, value in enumerate(values):
+        if value in seen:
+            raise ValidationError(nested_error(path(i), f"Duplicate {what} {value!r}."))
+        seen.add(value)
+
+
+def check_lon_lat(x: float, y: float, path: Iterable[Any], y_path: Iterable[Any] | None = None) -> None:
+    """Refuse a longitude outside [-180, 180] or a latitude outside [-90, 90] degrees (RFC 7946).
+
+    The error names ``path`` (``y_path`` for the latitude when given).
+    """
+    if not -180.0 <= x <= 180.0:
+        raise ValidationError(nested_error(path, "Longitude must be within [-180, 180] degrees."))
+    if not -90.0 <= y <= 90.0:
+        raise ValidationError(nested_error(path if y_path is None else y_path,
+                                           "Latitude must be within [-90, 90] degrees."))
+
+
+# --------------------------------------------------------------------------- load cases
+
+
+class LoadCaseSchema(Schema):
+    id = fields.String(required=True, validate=ID_TEXT)
+    label = fields.String(load_default="", validate=validate.Length(max=200))
+    current_scale = FiniteFloat(load_default=1.0, validate=NON_NEGATIVE)
+    currents_a = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+                             validate=validate.Length(min=1))
+    voltages_kv = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+                              validate=validate.Length(min=1))
+
+    @validates_schema
+    def changes_something(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if data.get("id") == "base":
+            raise ValidationError("'base' names the request as given; choose another id.", field_name="id")
+        if data.get("current_scale", 1.0) == 1.0 and not data.get("currents_a") and not data.get("voltages_kv"):
+            raise ValidationError("A load case must change the loading: give current_scale, currents_a or "
+                                  "voltages_kv.", field_name="current_scale")
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> LoadCase:
+        return LoadCase(**data)
+
+
+def check_load_cases(cases: list[LoadCase], circuit_ids: list[str], n_points: float, cap: float) -> None:
+    """Load cases fit the request: unique ids, known circuits, (cases + 1) x points <= ``cap``.
+
+    :raise marshmallow.ValidationError: naming ``load_cases/<i>/id``, ``.../currents_a/<circuit>``,
+        ``.../voltages_kv/<circuit>`` or ``load_cases``.
+    """
+    errors: dict[int, Any] = {}
+    seen: set[str] = set()
+    for i, case in enumerate(cases):
+        if case.id in seen:
+            errors.setdefault(i, {})["id"] = [f"Load case id {case.id!r} is used twice."]
+        seen.add(case.id)
+        for name in ("currents_a", "voltages_kv"):
+            unknown = {cid: [f"No circuit {cid!r} in the request (circuits: {', '.join(circuit_ids)})."]
+                       for cid in (getattr(case, name) or {}) if cid not in circuit_ids}
+            if unknown:
+                errors.setdefault(i, {})[name] = unknown
+    if errors:
+        raise ValidationError({"load_cases": errors})
+    if (len(cases) + 1) * n_points > cap:
+        raise ValidationError(f"{len(cases) + 1} cases (with the base case) x {n_points:.0f} points exceed "
+                              f"{cap:.0f} evaluated points; use fewer load cases or fewer points.",
+                              field_name="load_cases")
+
+
+def load_cases_field() -> fields.List:
+    """The ``load_cases`` member of a request body."""
+    return fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
+
+
+# --------------------------------------------------------------------------- limits and the base request
+
+
+@dataclass(frozen=True)
+class CustomLimit:
+    """A user-defined limit (e.g. a 0.4 µT planning threshold)."""
+
+    id: str
+    quantity: str
+    value: float
+    unit: str
+    title: str = ""
+
+
+class CustomLimitSchema(Schema):
+    id = fields.String(required=True, validate=ID_TEXT)
+    quantity = fields.String(required=True, validate=validate.OneOf(["E", "B"]))
+    value = FiniteFloat(required=True, validate=POSITIVE)
+    unit = fields.String(required=True, validate=UNITS)
+    title = fields.String(load_default="", validate=validate.Length(max=200))
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> CustomLimit:
+        if data["unit"] == "\u03bcT":  # Greek small mu, as keyboards often give it -> micro sign
+            data["unit"] = "\u00b5T"
+        return CustomLimit(**data)
+
+
+class AssessmentBaseSchema(Schema):
+    """Fields shared by every kind of assessment request.
+
+    Construct with the request-size limits: ``Schema(max_points=..., max_conductors=...)``.
+    """
+
+    title = fields.String(required=True, validate=TEXT)
+    reference = fields.String(required=True, validate=TEXT)
+    frequency_hz = FiniteFloat(required=True, validate=POSITIVE)
+    soil_resistivity_ohm_m = FiniteFloat(validate=POSITIVE)
+    reference_levels = fields.List(fields.String(validate=ID_TEXT), load_default=list,
+                                   validate=validate.Length(max=32))
+    custom_limits = fields.List(fields.Nested(CustomLimitSchema), load_default=list,
+                                validate=validate.Length(max=32))
+    load_cases = load_cases_field()
+
+    def __init__(self, *, max_points: int = 20_001, max_conductors: int = 64, **kwargs: Any):
+        super().__init__(**kwargs)
+        self.max_points = max_points
+        self.max_conductors = max_conductors
+
+    @validates_schema
+    def some_threshold(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if not data["reference_levels"] and not data["custom_limits"]:
+            raise ValidationError("Select at least one reference level (or give custom_limits).",
+                                  field_name="reference_levels")
+        check_unique([c.id for c in data["custom_limits"]], lambda i: ("custom_limits", i, "id"), "limit id",
+                     taken=data["reference_levels"])
+
+    def check_conductor_count(self, circuits: Iterable[Any], earth_wires: Iterable[Any], member: str) -> None:
+        """Refuse more conductors and earth wires than ``max_conductors`` (422 at ``member``)."""
+        n_cond = sum(len(c.conductors) for c in circuits) + len(tuple(earth_wires))
+        if n_cond > self.max_conductors:
+            raise ValidationError({member: [
+                f"{n_cond} conductors and earth wires given; at most {self.max_conductors} are allowed."]})
+
+
+def to_plain(obj: Any) -> Any:
+    """Dataclasses/tuples -> JSON-ready dicts/lists, dropping members that are None.
+
+    The result of ``to_plain(load_assessment_request(body))`` is the normalised
+    request: it loads again to an equal request.
+    """
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {f.name: to_plain(getattr(obj, f.name)) for f in dataclasses.fields(obj)
+                if getattr(obj, f.name) is not None}
+    if isinstance(obj, (list, tuple)):
+        return [to_plain(v) for v in obj]
+    return obj
