@@ -17,7 +17,7 @@ from .geometry import (
     VoltagePhasor,
 )
 from .results import FieldResult, axial_ratio, ellipse_axes, resultant_rms
-from .cross_section import compile_kernels, evaluate_cross_section
+from .cross_section import evaluate_cross_section, warm_up_section
 from .electric import electric_field_phasors, line_charges, potential_coefficients
 from .magnetic import complex_depth_m, earth_return_phasors, flux_density_phasors
 from .sources import (
@@ -65,7 +65,6 @@ __all__ = [
     "build_sources",
     "bundle_radius_m",
     "circuit_phase_angles_deg",
-    "compile_kernels",
     "complex_depth_m",
     "earth_return_phasors",
     "electric_field_phasors",
@@ -77,6 +76,7 @@ __all__ = [
     "subconductor_offsets_m",
     "validate_circuit",
     "validate_cross_section",
+    "warm_up_section",
     # reference levels and compliance
     "CATALOGUE_VERSION",
     "LevelDefinition",

@@ -299,16 +299,20 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
     )
 
 
-def compile_kernels() -> None:
-    """Compile (or load from numba's on-disk cache) every cross-section kernel now.
+def warm_up_section() -> float:
+    """Compile (or load from numba's on-disk cache) every cross-section kernel now; returns the seconds spent.
 
     The first evaluation in a process otherwise pays the compilation (a few seconds
-    without a cache).  Call it once at start-up, e.g. in the service's app factory.
+    without a cache).  :func:`models.kernels.warm_up` warms every kernel family.
 
     Examples
     --------
-    >>> compile_kernels()
+    >>> warm_up_section() >= 0.0
+    True
     """
+    import time
+
+    t0 = time.perf_counter()
     from .geometry import Bundle, Circuit, Conductor
     from .magnetic import flux_density_phasors
     from .electric import electric_field_phasors
@@ -317,3 +321,4 @@ def compile_kernels() -> None:
     evaluate_cross_section(section, [0.0], [1.0], 50.0, soil_resistivity_ohm_m=100.0)
     flux_density_phasors([0.0], [1.0], [0.0], [10.0], [1.0])
     electric_field_phasors([0.0], [1.0], [0.0], [10.0], [1e-9])
+    return time.perf_counter() - t0

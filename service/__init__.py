@@ -44,12 +44,9 @@ def _warm_up_engine() -> None:
     Runs in each gunicorn worker (no ``preload_app``), i.e. after the fork, as the
     parallel 3-D kernels require; later apps in the same process find them compiled.
     """
-    from models.cross_section import compile_kernels
-    from models.route import warm_up_electric, warm_up_magnetic
+    from models.kernels import warm_up
 
-    compile_kernels()
-    warm_up_magnetic()
-    warm_up_electric()
+    warm_up()
 
 
 def _register_blueprints(app: Flask) -> None:

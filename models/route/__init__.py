@@ -29,11 +29,10 @@ from .alignment import (
     support_chainage_m,
     validate_route,
 )
-from . import earth_return3d, magnetic3d
+from . import earth_return3d, electric3d, magnetic3d
 from .earth_return3d import image_flux_density_segments
 from .electric3d import electric_field_segments, line_charges
 from .evaluate import evaluate_route
-from .electric3d import warm_up as warm_up_electric
 from .magnetic3d import flux_density_segments
 from .types import Attachment, Route, RouteCircuit, RouteConductor, RouteEarthWire, SegmentSet, Support
 
@@ -82,3 +81,15 @@ def warm_up_magnetic() -> float:
     Returns the seconds spent; see :func:`models.route.magnetic3d.warm_up`.
     """
     return magnetic3d.warm_up() + earth_return3d.warm_up()
+
+
+def warm_up_electric() -> float:
+    """Compile (or load from numba's disk cache) the 3-D electric kernels; returns the seconds spent.
+
+    See :func:`models.route.electric3d.warm_up`.
+    """
+    import time
+
+    t0 = time.perf_counter()
+    electric3d.warm_up()
+    return time.perf_counter() - t0
