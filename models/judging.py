@@ -106,13 +106,20 @@ def judge(evaluation: Evaluation, thresholds: Sequence[Threshold]) -> list[Judge
     """
     thresholds = list(thresholds)
     every_rows = evaluation.everywhere_rows()
-    checks = evaluate_compliance(evaluation.everywhere(), thresholds, quantity_kind=COMPLIANCE_QUANTITY)
     edges = evaluation.by_role("right_of_way")
     edge_checks = (evaluate_compliance(edges.field, thresholds, quantity_kind=COMPLIANCE_QUANTITY)
                    if edges is not None else None)
     profile = evaluation.by_role("lateral_profile")
-    lateral = (evaluate_compliance(profile.field, thresholds, lateral_offset_m=profile.offset_m,
-                                   quantity_kind=COMPLIANCE_QUANTITY) if profile is not None else None)
+    lateral = None
+    if profile is not None and len(profile) == len(every_rows) and profile.rows.start == every_rows[0]:
+        # the profile is every point (a cross-section): one pass gives maxima and distances
+        checks = lateral = evaluate_compliance(profile.field, thresholds, lateral_offset_m=profile.offset_m,
+                                               quantity_kind=COMPLIANCE_QUANTITY)
+    else:
+        checks = evaluate_compliance(evaluation.everywhere(), thresholds, quantity_kind=COMPLIANCE_QUANTITY)
+        if profile is not None:
+            lateral = evaluate_compliance(profile.field, thresholds, lateral_offset_m=profile.offset_m,
+                                          quantity_kind=COMPLIANCE_QUANTITY)
     out = []
     for k, c in enumerate(checks):
         basis = basis_for(c.threshold, edges is not None)

@@ -10,6 +10,7 @@ from collections.abc import Mapping
 from typing import Any
 
 from flask import Flask
+from flask_compress import Compress
 
 
 def create_app(config: Mapping[str, Any] | None = None) -> Flask:
@@ -32,6 +33,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
 
     errors.init_app(app)
     storage.init_app(app)
+    Compress(app)  # gzip on Accept-Encoding (COMPRESS_* settings), Vary: Accept-Encoding
     if app.config["WARM_UP_ENGINE"]:
         _warm_up_engine()
     _register_blueprints(app)
@@ -46,7 +48,10 @@ def _warm_up_engine() -> None:
     """
     from models.kernels import warm_up
 
+    from . import json_text
+
     warm_up()
+    json_text.warm_up()
 
 
 def _register_blueprints(app: Flask) -> None:

@@ -21,6 +21,7 @@ from models.errors import CatalogueError
 
 from . import storage
 from .errors import ProblemError
+from .json_text import dumps
 from .inputs import ListQuerySchema, ReferenceLevelQuerySchema, invalid_parameter, json_body, load_query
 from .report import compute_report
 from .tables import threshold_row
@@ -115,7 +116,7 @@ def list_assessments() -> Response:
 def evaluate() -> Response:
     """Compute an assessment without storing it."""
     report = compute_report(json_body(), current_app.config)
-    return jsonify({"id": None, "created_at": None, **report, "digest": None})
+    return Response(dumps({"id": None, "created_at": None, **report, "digest": None}), mimetype="application/json")
 
 
 # --------------------------------------------------------------------------- catalogue and contract

@@ -45,6 +45,13 @@ DEFAULTS: dict[str, Any] = {
     # Compile (or load from numba's cache) the engine kernels at start-up, so the first
     # request of each worker does not pay for it.
     "WARM_UP_ENGINE": True,
+    # Responses compressed with gzip when the client sends Accept-Encoding: gzip (flask-compress):
+    # JSON, CSV and GeoJSON of at least COMPRESS_MIN_SIZE bytes, at COMPRESS_LEVEL (1 = fastest;
+    # an 18 MB report of 20,001 points becomes about 5 MB in about 0.13 s).
+    "COMPRESS_ALGORITHM": "gzip",
+    "COMPRESS_LEVEL": 1,
+    "COMPRESS_MIN_SIZE": 1024,
+    "COMPRESS_MIMETYPES": ["application/json", "application/geo+json", "application/problem+json", "text/csv"],
 }
 
 # Documented in README.md "Configuration"; the table there lists these names.
@@ -59,6 +66,7 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_LOG_LEVEL": "application log level",
     "EMF_MIGRATE_ON_START": "apply the schema migrations at start-up (true/false)",
     "EMF_WARM_UP_ENGINE": "compile the engine kernels at start-up (true/false)",
+    "EMF_COMPRESS_LEVEL": "gzip level of compressed responses (1 fastest .. 9 smallest)",
 }
 
 
@@ -90,6 +98,9 @@ def check(config: Mapping[str, Any]) -> None:
         value = config.get(key)
         if not isinstance(value, int) or isinstance(value, bool) or value < 1:
             raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")
+    level = config.get("COMPRESS_LEVEL")
+    if not isinstance(level, int) or isinstance(level, bool) or not 1 <= level <= 9:
+        raise ValueError(f"Setting COMPRESS_LEVEL must be an integer from 1 to 9; instead received {level!r}.")
     if config["PAGE_SIZE_DEFAULT"] > config["PAGE_SIZE_MAX"]:
         raise ValueError("Setting PAGE_SIZE_DEFAULT must not exceed PAGE_SIZE_MAX.")
     if not isinstance(config.get("MIGRATE_ON_START"), bool):

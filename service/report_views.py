@@ -31,6 +31,7 @@ from models.errors import EngineInputError
 from . import audit, reports, storage
 from .errors import ProblemError
 from .inputs import ChainQuerySchema, invalid_parameter, load_query
+from .json_text import plain
 from .report import compute_report
 
 bp = Blueprint("reports", __name__)
@@ -151,7 +152,7 @@ def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> 
     out: dict[str, Any] = {"tolerance": {"rtol": audit.RTOL, "atol": audit.ATOL,
                                          "rule": "|stored - recomputed| <= atol + rtol * max(|stored|, |recomputed|)"}}
     try:
-        fresh = compute_report(json.loads(record.request_json), current_app.config)
+        fresh = plain(compute_report(json.loads(record.request_json), current_app.config))
     except (ValidationError, EngineInputError, ValueError) as exc:
         detail = exc.messages if isinstance(exc, ValidationError) else str(exc)
         return {**out, "matches": None, "error": f"The stored request no longer loads or evaluates: {detail}"}

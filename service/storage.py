@@ -56,6 +56,8 @@ from sqlalchemy import (
 from sqlalchemy.orm import DeclarativeBase, Mapped, Session, mapped_column, sessionmaker
 from sqlalchemy.pool import StaticPool
 
+from .json_text import dumps
+
 GENESIS_DIGEST = "0" * 64
 """``prev_digest`` of the first record in the chain."""
 
@@ -159,11 +161,15 @@ def canonical_json(obj: Any) -> str:
 
 
 def report_to_json(report: Mapping[str, Any]) -> str:
-    """Stored form of a report: compact JSON, key order kept, no NaN."""
-    return json.dumps(report, separators=(",", ":"), ensure_ascii=False, allow_nan=False)
+    """Stored form of a report: compact JSON, key order kept, UTF-8 characters unescaped.
+
+    Written by :func:`service.json_text.dumps` (the standard library's ``json.dumps``
+    text, byte for byte, with point tables written column by column).
+    """
+    return dumps(report).decode("utf-8")
 
 
-def record_digest(canonical_request: str, report_json: str, prev_digest: str) -> str:
+def record_digest(canonical_request: str, report_json: str | bytes, prev_digest: str) -> str:
     """SHA-256 digest of one record, chained to its predecessor.
 
     ``sha256(utf8(canonical_request + "\\n" + report_json + "\\n" + prev_digest))`` as
@@ -174,8 +180,11 @@ def record_digest(canonical_request: str, report_json: str, prev_digest: str) ->
     >>> record_digest("{}", "{}", GENESIS_DIGEST)[:16]
     'fc32dd59379f595f'
     """
-    payload = canonical_request + "\n" + report_json + "\n" + prev_digest
-    return hashlib.sha256(payload.encode("utf-8")).hexdigest()
+    h = hashlib.sha256(canonical_request.encode("utf-8"))
+    h.update(b"\n")
+    h.update(report_json if isinstance(report_json, bytes) else report_json.encode("utf-8"))
+    h.update(b"\n" + prev_digest.encode("ascii"))
+    return h.hexdigest()
 
 
 def rfc3339(moment: datetime) -> str:
@@ -205,16 +214,21 @@ def insert_assessment(session: Session, canonical_request: str, report: Mapping[
     -------
     AssessmentRecord
         The new record, flushed.
+
+    The report is encoded before the chain head is claimed, so concurrent inserts wait
+    only for the digest and the row, not for the encoding.
     """
+    encoded = dumps(report)  # '{...}' without id and created_at
     session.execute(update(ChainHead).where(ChainHead.id == 1).values(sequence=ChainHead.sequence + 1))
     sequence, prev_digest = session.execute(
         select(ChainHead.sequence, ChainHead.digest).where(ChainHead.id == 1)
     ).one()
     record_id = uuid.uuid4()
     created_at = datetime.now(timezone.utc)
-    body = {"id": str(record_id), "created_at": rfc3339(created_at), **report}
-    report_json = report_to_json(body)
-    digest = record_digest(canonical_request, report_json, prev_digest)
+    head = f'{{"id":{json.dumps(str(record_id))},"created_at":{json.dumps(rfc3339(created_at))}'
+    stored = head.encode("ascii") + (b"," + encoded[1:] if len(encoded) > 2 else b"}")
+    digest = record_digest(canonical_request, stored, prev_digest)
+    report_json = stored.decode("utf-8")
     record = AssessmentRecord(
         id=record_id,
         sequence=sequence,

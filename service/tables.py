@@ -3,8 +3,8 @@
 SI values from the engine become E in kV/m (``*_kv_m``) and B in µT (``*_ut``).
 ``e_kv_m``/``b_ut`` are resultants (root-sum-square of the component rms values, the
 usual measurement and compliance quantity); ``e_max_kv_m``/``b_max_ut`` are the
-semi-major axes of the polarisation ellipses.  Point tables are built column by column
-from the engine's arrays.
+semi-major axes of the polarisation ellipses.  Point tables are
+:class:`service.json_text.PointTable` objects: the engine's arrays as columns.
 """
 
 from __future__ import annotations
@@ -17,6 +17,8 @@ import numpy as np
 from models import catalogue
 from models.results import FieldResult
 from models.units import t_to_ut, v_per_m_to_kv_per_m
+
+from .json_text import PointTable
 
 SECTION_AXES = ("horizontal", "vertical")
 """Component names of a cross-section's fields (2-D)."""
@@ -76,27 +78,12 @@ def field_columns(field: FieldResult, axes: Sequence[str]) -> tuple[dict[str, np
     return main, comps
 
 
-def _lists(columns: dict[str, Any]) -> tuple[list[str], list[list]]:
-    return list(columns), [v if isinstance(v, (list, tuple)) else np.asarray(v).tolist() for v in columns.values()]
-
-
-def point_rows(lead: dict[str, Any], field: FieldResult, axes: Sequence[str]) -> list[dict[str, Any]]:
-    """One dict per point: the ``lead`` columns (position, set-specific), then fields and ``components``."""
+def point_rows(lead: dict[str, Any], field: FieldResult, axes: Sequence[str]) -> PointTable:
+    """One row per point: the ``lead`` columns (position, set-specific), then fields and ``components``."""
     main, comps = field_columns(field, axes)
-    lead_names, lead_values = _lists(lead)
-    names, values = _lists({k: np.asarray(v, dtype=float) for k, v in main.items()})
-    cnames, cvalues = _lists({k: np.asarray(v, dtype=float) for k, v in comps.items()})
-    rows = []
-    for lrow, row, crow in zip(zip(*lead_values), zip(*values), zip(*cvalues)):
-        item = dict(zip(lead_names, lrow))
-        item.update(zip(names, row))
-        item["components"] = dict(zip(cnames, crow))
-        rows.append(item)
-    return rows
+    return PointTable({**lead, **main}, {"components": comps})
 
 
-def resultant_rows(lead: dict[str, Any], field: FieldResult) -> list[dict[str, Any]]:
-    """One dict per point: the ``lead`` columns, then the resultant ``e_kv_m`` and ``b_ut``."""
-    names, values = _lists({**lead, "e_kv_m": np.asarray(v_per_m_to_kv_per_m(field.e_rms_v_per_m), dtype=float),
-                            "b_ut": np.asarray(t_to_ut(field.b_rms_t), dtype=float)})
-    return [dict(zip(names, row)) for row in zip(*values)]
+def resultant_rows(lead: dict[str, Any], field: FieldResult) -> PointTable:
+    """One row per point: the ``lead`` columns, then the resultant ``e_kv_m`` and ``b_ut``."""
+    return PointTable({**lead, "e_kv_m": v_per_m_to_kv_per_m(field.e_rms_v_per_m), "b_ut": t_to_ut(field.b_rms_t)})
