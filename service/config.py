@@ -32,6 +32,9 @@ DEFAULTS: dict[str, Any] = {
     "MAX_POINTS": 20_001,
     # Largest number of observation points of a route request (all evaluation sets).
     "MAX_ROUTE_POINTS": 200_000,
+    # Largest report a request may produce [bytes], estimated from the request before computing
+    # (service.report.report_size_estimate); larger requests get a 422 naming MAX_REPORT_BYTES.
+    "MAX_REPORT_BYTES": 256 * 1024 * 1024,
     # Largest number of conductor positions (all circuits) plus earth wires.
     "MAX_CONDUCTORS": 64,
     # Page size for GET /v1/assessments: default and upper bound.
@@ -61,6 +64,7 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_MAX_POINTS": "largest number of evaluation points per request",
     "EMF_MAX_ROUTE_POINTS": "largest number of observation points of a route request",
     "EMF_MAX_CONDUCTORS": "largest number of conductor positions plus earth wires",
+    "EMF_MAX_REPORT_BYTES": "largest report a request may produce [bytes] (estimated before computing)",
     "EMF_PAGE_SIZE_DEFAULT": "default page size of the assessment list",
     "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
     "EMF_LOG_LEVEL": "application log level",
@@ -94,7 +98,7 @@ def check(config: Mapping[str, Any]) -> None:
 
     :raise ValueError: naming the offending setting.
     """
-    for key in ("MAX_CONTENT_LENGTH", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
+    for key in ("MAX_CONTENT_LENGTH", "MAX_REPORT_BYTES", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
         value = config.get(key)
         if not isinstance(value, int) or isinstance(value, bool) or value < 1:
             raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")

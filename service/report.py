@@ -23,6 +23,7 @@ from models.judging import BASIS_NOTES, COMPLIANCE_QUANTITY, EdgeMaximum, Judgem
 from models.judging import edge_maxima, governing_cases
 from models.load_cases import evaluate_load_cases
 from models.units import t_to_ut, v_per_m_to_kv_per_m
+from marshmallow import ValidationError
 
 from .route_report import ROUTE
 from .route_schemas import RouteAssessmentRequest, geometry_kind, load_route_request
@@ -110,8 +111,40 @@ def compute_report(body: Any, limits: Mapping[str, Any]) -> dict[str, Any]:
     :raise models.errors.EngineInputError: physically impossible input (422, field named).
     """
     request = load_request(body, limits)
+    check_report_size(request, limits["MAX_REPORT_BYTES"])
     max_points = limits["MAX_ROUTE_POINTS"] if isinstance(request, RouteAssessmentRequest) else None
     return build_report(request, max_points=max_points)
+
+
+ROW_BYTES = {"points": 700, "grid": 100, "case": 150, "route": 900}
+"""Upper bounds of the JSON text per point row [bytes]: a row with components (cross-section,
+route set), a grid node, a load case's point row (measured 560, 43-85, 118 and 680-740)."""
+
+
+def report_size_estimate(request: Request) -> int:
+    """An upper estimate of the report's JSON size [bytes], from the request alone (before computing)."""
+    counts = request.point_counts
+    cases = len(request.load_cases or ())
+    if isinstance(request, RouteAssessmentRequest):
+        rows = sum(n for name, n in counts.items() if name != "grid")
+        receptors = counts.get("receptors", 0)
+        size = rows * ROW_BYTES["route"] + counts.get("grid", 0) * ROW_BYTES["grid"] + cases * receptors * 150
+    else:
+        size = counts["points"] * (ROW_BYTES["points"] + cases * ROW_BYTES["case"])
+    return int(size) + 64 * 1024
+
+
+def check_report_size(request: Request, max_bytes: int) -> None:
+    """Refuse, before any computation, a request whose report would exceed ``max_bytes`` (``MAX_REPORT_BYTES``).
+
+    :raise marshmallow.ValidationError: 422 naming the setting and the estimate.
+    """
+    estimate = report_size_estimate(request)
+    if estimate > max_bytes:
+        raise ValidationError(
+            f"The report of this request would be about {estimate / 2**20:.0f} MiB, more than this service's "
+            f"limit MAX_REPORT_BYTES ({max_bytes / 2**20:.0f} MiB); use fewer points (a coarser step or "
+            "resolution), fewer evaluation sets or fewer load cases.", field_name="_schema")
 
 
 def thresholds(request: Request) -> list[catalogue.Threshold]:

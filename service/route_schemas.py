@@ -16,7 +16,7 @@ geographic.  The loaded request holds engine dataclasses (:mod:`models.route.typ
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -349,6 +349,8 @@ class RouteAssessmentRequest:
     custom_limits: tuple[CustomLimit, ...] = ()
     soil_resistivity_ohm_m: float | None = None
     load_cases: tuple[LoadCase, ...] | None = None
+    point_counts: dict = field(default_factory=dict, compare=False)
+    """Estimated points per evaluation set (from the schema's size checks; not part of the request)."""
 
     @property
     def line(self) -> Route:
@@ -446,6 +448,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
                 raise ValidationError({"right_of_way": {"step_m": [
                     f"The right-of-way edges have about {counts['right_of_way']:.0f} points; at most {cap} are "
                     "allowed per request."]}})
+        self.point_counts = counts
         total = sum(counts.values())
         if total > cap:
             largest = max(counts, key=counts.get)
@@ -477,7 +480,8 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             route=data["route"]["route"], crs=data["route"]["crs"], evaluation=sets,
             reference_levels=tuple(data["reference_levels"]), custom_limits=tuple(data["custom_limits"]),
             soil_resistivity_ohm_m=data.get("soil_resistivity_ohm_m"),
-            load_cases=tuple(data["load_cases"]) if "load_cases" in data else None)
+            load_cases=tuple(data["load_cases"]) if "load_cases" in data else None,
+            point_counts=dict(getattr(self, "point_counts", {})))
 
 
 def geometry_kind(body: Any) -> str:

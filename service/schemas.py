@@ -200,6 +200,13 @@ class AssessmentRequest:
         """Where the fields are evaluated."""
         return SectionSets(self.profile, self.points, self.right_of_way)
 
+    @property
+    def point_counts(self) -> dict[str, float]:
+        """Points per evaluation set."""
+        n = (profile_point_count(self.profile.from_m, self.profile.to_m, self.profile.step_m)
+             if self.profile is not None else len(self.points or ()))
+        return {"points": n, "right_of_way": 2 if self.right_of_way is not None else 0}
+
 
 class CrossSectionAssessmentSchema(AssessmentBaseSchema):
     """Assessment of a line cross-section along a lateral profile or at given points."""

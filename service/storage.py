@@ -124,7 +124,7 @@ class AssessmentRecord(Base):
         closing brace; the result parses to exactly :meth:`report`.
         """
         assert self.report_json.endswith("}")
-        return self.report_json[:-1] + ',"digest":' + json.dumps(self.digest) + "}"
+        return "".join([self.report_json[:-1], ',"digest":', json.dumps(self.digest), "}"])
 
 
 class ChainHead(Base):
@@ -226,9 +226,12 @@ def insert_assessment(session: Session, canonical_request: str, report: Mapping[
     record_id = uuid.uuid4()
     created_at = datetime.now(timezone.utc)
     head = f'{{"id":{json.dumps(str(record_id))},"created_at":{json.dumps(rfc3339(created_at))}'
-    stored = head.encode("ascii") + (b"," + encoded[1:] if len(encoded) > 2 else b"}")
+    tail = memoryview(encoded)[1:] if len(encoded) > 2 else b"}"
+    stored = b"".join([head.encode("ascii"), b"," if len(encoded) > 2 else b"", tail])  # one copy
+    del tail, encoded
     digest = record_digest(canonical_request, stored, prev_digest)
     report_json = stored.decode("utf-8")
+    del stored
     record = AssessmentRecord(
         id=record_id,
         sequence=sequence,
