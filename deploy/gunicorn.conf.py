@@ -28,3 +28,26 @@ capture_output = True
 # No runtime control socket (gunicorn >= 25.1): one shared default path would collide when
 # several instances run on one host (the demo beside the tests); older versions ignore the name.
 control_socket_disable = True
+
+
+# Prometheus multi-process mode: every worker writes its samples to files in one folder and
+# /metrics adds them up (prometheus-client). The folder must be empty when the master starts;
+# an operator may point PROMETHEUS_MULTIPROC_DIR elsewhere (it is then emptied the same way).
+def on_starting(server):
+    import shutil
+    import tempfile
+
+    folder = os.environ.setdefault("PROMETHEUS_MULTIPROC_DIR", tempfile.mkdtemp(prefix="emf-metrics-"))
+    os.makedirs(folder, exist_ok=True)
+    for name in os.listdir(folder):
+        path = os.path.join(folder, name)
+        if name.endswith(".db"):
+            os.remove(path)
+        elif os.path.isdir(path):
+            shutil.rmtree(path)
+
+
+def child_exit(server, worker):
+    from prometheus_client import multiprocess
+
+    multiprocess.mark_process_dead(worker.pid)

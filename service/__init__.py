@@ -24,7 +24,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     :raise service.schema_migrations.SchemaStateError: on a database schema it cannot use.
     """
     from . import config as settings
-    from . import errors, storage
+    from . import errors, metrics, storage
 
     app = Flask(__name__, instance_relative_config=True)
     settings.load(app.config, config)
@@ -32,6 +32,7 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     app.json.sort_keys = False  # reports keep the order they were built in
 
     errors.init_app(app)
+    metrics.init_app(app)
     storage.init_app(app)
     Compress(app)  # gzip on Accept-Encoding (COMPRESS_* settings), Vary: Accept-Encoding
     if app.config["WARM_UP_ENGINE"]:
@@ -56,8 +57,9 @@ def _warm_up_engine() -> None:
 
 def _register_blueprints(app: Flask) -> None:
     """Every blueprint of the service; add new areas here, one line each."""
-    from . import api, report_views
+    from . import api, metrics, report_views
 
     app.register_blueprint(api.bp)
+    app.register_blueprint(metrics.bp)  # /metrics, /readyz
     # Reports and audit (service/report_views.py) register their blueprint below.
     app.register_blueprint(report_views.bp)

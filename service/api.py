@@ -7,6 +7,7 @@ Errors are raised and formatted by :mod:`service.errors`.
 from __future__ import annotations
 
 import json
+import time
 import uuid
 from functools import lru_cache
 from pathlib import Path
@@ -22,6 +23,7 @@ from models.errors import CatalogueError
 from . import storage
 from .errors import ProblemError
 from .json_text import dumps
+from .metrics import ASSESSMENTS_STORED, REPORT_SECONDS
 from .inputs import ListQuerySchema, ReferenceLevelQuerySchema, invalid_parameter, json_body, load_query
 from .report import compute_report
 from .tables import threshold_row
@@ -43,6 +45,14 @@ def healthz() -> Response:
 
 
 # --------------------------------------------------------------------------- helpers
+
+
+def _timed_report(body: Any) -> dict[str, Any]:
+    """:func:`service.report.compute_report` with its time recorded (``emf_report_build_seconds``)."""
+    t0 = time.perf_counter()
+    report = compute_report(body, current_app.config)
+    REPORT_SECONDS.labels(report["kind"]).observe(time.perf_counter() - t0)
+    return report
 
 
 def _json_text(text: str) -> Response:
@@ -70,10 +80,11 @@ def _summary(record: storage.AssessmentRecord) -> dict[str, Any]:
 @bp.post("/v1/assessments")
 def create_assessment() -> tuple[Response, int, dict[str, str]]:
     """Compute an assessment and store it."""
-    report = compute_report(json_body(), current_app.config)
+    report = _timed_report(json_body())
     session = storage.get_session()
     with session.begin():
         record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    ASSESSMENTS_STORED.labels(report["kind"]).inc()
     location = url_for("api.get_assessment", assessment_id=record.id)
     return _json_text(record.served_json()), 201, {"Location": location}
 
@@ -115,7 +126,7 @@ def list_assessments() -> Response:
 @bp.post("/v1/evaluate")
 def evaluate() -> Response:
     """Compute an assessment without storing it."""
-    report = compute_report(json_body(), current_app.config)
+    report = _timed_report(json_body())
     return Response(dumps({"id": None, "created_at": None, **report, "digest": None}), mimetype="application/json")
 
 

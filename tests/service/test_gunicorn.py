@@ -1,4 +1,4 @@
-"""Several gunicorn workers (separate processes) writing to one SQLite file keep one linear chain."""
+"""Several gunicorn workers (separate processes) writing to one SQLite file keep one linear chain; /metrics adds up the workers."""
 
 from __future__ import annotations
 
@@ -13,6 +13,7 @@ from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import pytest
+from prometheus_client.parser import text_string_to_metric_families
 
 from service import storage
 from tests.service.test_api import small_body
@@ -54,6 +55,17 @@ def test_two_workers_concurrent_posts_keep_chain_linear(tmp_path):
 
         with ThreadPoolExecutor(max_workers=4) as pool:
             assert list(pool.map(post, range(12))) == [201] * 12
+        # /metrics adds up both workers (prometheus-client multi-process mode, deploy/gunicorn.conf.py)
+        with urllib.request.urlopen(base + "/metrics", timeout=10) as resp:
+            families = {f.name: f for f in text_string_to_metric_families(resp.read().decode())}
+        posts = sum(s.value for s in families["emf_http_requests"].samples
+                    if s.name == "emf_http_requests_total" and s.labels["route"] == "/v1/assessments"
+                    and s.labels["status"] == "201")
+        stored = sum(s.value for s in families["emf_assessments_stored"].samples
+                     if s.name == "emf_assessments_stored_total")
+        assert posts == 12 and stored == 12
+        with urllib.request.urlopen(base + "/readyz", timeout=10) as resp:
+            assert resp.status == 200 and json.loads(resp.read())["status"] == "ready"
     finally:
         server.terminate()
         server.wait(timeout=30)
