@@ -21,7 +21,9 @@ threads = int(os.environ.get("GUNICORN_THREADS", "1"))
 preload_app = False
 timeout = int(os.environ.get("GUNICORN_TIMEOUT", "120"))  # a 20,001-point profile takes well under this
 graceful_timeout = 20
-accesslog = "-"  # stdout
+# The application writes one JSON line per request (service.logs, EMF_LOG_REQUESTS); gunicorn's
+# own text access log only when asked for (GUNICORN_ACCESSLOG=- for standard output).
+accesslog = os.environ.get("GUNICORN_ACCESSLOG") or None
 errorlog = "-"
 loglevel = os.environ.get("EMF_LOG_LEVEL", "info").lower()
 capture_output = True

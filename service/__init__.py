@@ -24,13 +24,13 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     :raise service.schema_migrations.SchemaStateError: on a database schema it cannot use.
     """
     from . import config as settings
-    from . import errors, metrics, storage
+    from . import errors, logs, metrics, storage
 
     app = Flask(__name__, instance_relative_config=True)
     settings.load(app.config, config)
-    app.logger.setLevel(str(app.config["LOG_LEVEL"]).upper())
     app.json.sort_keys = False  # reports keep the order they were built in
 
+    logs.init_app(app)
     errors.init_app(app)
     metrics.init_app(app)
     storage.init_app(app)

@@ -42,6 +42,10 @@ DEFAULTS: dict[str, Any] = {
     "PAGE_SIZE_MAX": 100,
     # Log level of the application logger (DEBUG, INFO, WARNING, ERROR).
     "LOG_LEVEL": "INFO",
+    # "json": one JSON object per log line with the request id (service.logs); "text": Flask's plain lines.
+    "LOG_FORMAT": "json",
+    # One log line per answered request (status, duration), no headers or bodies.
+    "LOG_REQUESTS": True,
     # Apply the schema migrations (alembic upgrade head) at start-up, under a lock.  When
     # false, start-up refuses a database that is not at head (run `python -m service.migrate upgrade`).
     "MIGRATE_ON_START": True,
@@ -68,6 +72,8 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_PAGE_SIZE_DEFAULT": "default page size of the assessment list",
     "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
     "EMF_LOG_LEVEL": "application log level",
+    "EMF_LOG_FORMAT": "json (one object per line, with the request id) or text",
+    "EMF_LOG_REQUESTS": "one log line per answered request (true/false)",
     "EMF_MIGRATE_ON_START": "apply the schema migrations at start-up (true/false)",
     "EMF_WARM_UP_ENGINE": "compile the engine kernels at start-up (true/false)",
     "EMF_COMPRESS_LEVEL": "gzip level of compressed responses (1 fastest .. 9 smallest)",
@@ -107,6 +113,10 @@ def check(config: Mapping[str, Any]) -> None:
         raise ValueError(f"Setting COMPRESS_LEVEL must be an integer from 1 to 9; instead received {level!r}.")
     if config["PAGE_SIZE_DEFAULT"] > config["PAGE_SIZE_MAX"]:
         raise ValueError("Setting PAGE_SIZE_DEFAULT must not exceed PAGE_SIZE_MAX.")
+    if config.get("LOG_FORMAT") not in ("json", "text"):
+        raise ValueError(f"Setting LOG_FORMAT must be 'json' or 'text'; instead received {config.get('LOG_FORMAT')!r}.")
+    if not isinstance(config.get("LOG_REQUESTS"), bool):
+        raise ValueError(f"Setting LOG_REQUESTS must be true or false; instead received {config.get('LOG_REQUESTS')!r}.")
     if not isinstance(config.get("MIGRATE_ON_START"), bool):
         raise ValueError("Setting MIGRATE_ON_START must be true or false; "
                          f"instead received {config.get('MIGRATE_ON_START')!r}.")
