@@ -38,6 +38,10 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     if app.config["WARM_UP_ENGINE"]:
         _warm_up_engine()
     _register_blueprints(app)
+    if app.config["BATCH_WORKER"] and not app.testing:
+        from . import batches
+
+        batches.resume(app)
     return app
 
 
@@ -57,9 +61,10 @@ def _warm_up_engine() -> None:
 
 def _register_blueprints(app: Flask) -> None:
     """Every blueprint of the service; add new areas here, one line each."""
-    from . import api, metrics, report_views
+    from . import api, batch_views, metrics, report_views
 
     app.register_blueprint(api.bp)
     app.register_blueprint(metrics.bp)  # /metrics, /readyz
+    app.register_blueprint(batch_views.bp)  # /v1/batches
     # Reports and audit (service/report_views.py) register their blueprint below.
     app.register_blueprint(report_views.bp)

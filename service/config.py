@@ -37,6 +37,13 @@ DEFAULTS: dict[str, Any] = {
     "MAX_REPORT_BYTES": 256 * 1024 * 1024,
     # Largest number of conductor positions (all circuits) plus earth wires.
     "MAX_CONDUCTORS": 64,
+    # Compliance batches (POST /v1/batches): most items per batch; each worker's background
+    # processor (off with BATCH_WORKER false), its idle poll [s] and the lease after which an
+    # item claimed by a worker that died is taken over [s].
+    "MAX_BATCH_ITEMS": 500,
+    "BATCH_WORKER": True,
+    "BATCH_POLL_S": 2.0,
+    "BATCH_LEASE_S": 300.0,
     # Page size for GET /v1/assessments: default and upper bound.
     "PAGE_SIZE_DEFAULT": 20,
     "PAGE_SIZE_MAX": 100,
@@ -69,6 +76,10 @@ ENVIRONMENT_VARIABLES: dict[str, str] = {
     "EMF_MAX_ROUTE_POINTS": "largest number of observation points of a route request",
     "EMF_MAX_CONDUCTORS": "largest number of conductor positions plus earth wires",
     "EMF_MAX_REPORT_BYTES": "largest report a request may produce [bytes] (estimated before computing)",
+    "EMF_MAX_BATCH_ITEMS": "most items of one batch",
+    "EMF_BATCH_WORKER": "process batch items in a background thread of each worker (true/false)",
+    "EMF_BATCH_POLL_S": "idle poll of the batch processor [s]",
+    "EMF_BATCH_LEASE_S": "seconds after which a claimed batch item of a dead worker is taken over",
     "EMF_PAGE_SIZE_DEFAULT": "default page size of the assessment list",
     "EMF_PAGE_SIZE_MAX": "largest page size of the assessment list",
     "EMF_LOG_LEVEL": "application log level",
@@ -104,7 +115,13 @@ def check(config: Mapping[str, Any]) -> None:
 
     :raise ValueError: naming the offending setting.
     """
-    for key in ("MAX_CONTENT_LENGTH", "MAX_REPORT_BYTES", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
+    for key in ("BATCH_POLL_S", "BATCH_LEASE_S"):
+        value = config.get(key)
+        if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
+            raise ValueError(f"Setting {key} must be a number > 0; instead received {value!r}.")
+    if not isinstance(config.get("BATCH_WORKER"), bool):
+        raise ValueError(f"Setting BATCH_WORKER must be true or false; instead received {config.get('BATCH_WORKER')!r}.")
+    for key in ("MAX_BATCH_ITEMS", "MAX_CONTENT_LENGTH", "MAX_REPORT_BYTES", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
         value = config.get(key)
         if not isinstance(value, int) or isinstance(value, bool) or value < 1:
             raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")

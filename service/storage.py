@@ -41,6 +41,8 @@ from sqlalchemy import (
     CheckConstraint,
     DateTime,
     Engine,
+    Float,
+    ForeignKey,
     Integer,
     String,
     Text,
@@ -136,6 +138,43 @@ class ChainHead(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     sequence: Mapped[int] = mapped_column(BigInteger().with_variant(Integer, "sqlite"))
     digest: Mapped[str] = mapped_column(String(64))
+
+
+class BatchRecord(Base):
+    """One submitted batch."""
+
+    __tablename__ = "batches"
+
+    id: Mapped[uuid.UUID] = mapped_column(Uuid, primary_key=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime, index=True)
+    title: Mapped[str] = mapped_column(String(200))
+    item_count: Mapped[int] = mapped_column(Integer)
+
+
+class BatchItem(Base):
+    """One scenario of a batch and what became of it."""
+
+    __tablename__ = "batch_items"
+    __table_args__ = (CheckConstraint("status IN ('pending', 'running', 'done', 'error')",
+                                      name="ck_batch_items_status"),)
+
+    batch_id: Mapped[uuid.UUID] = mapped_column(Uuid, ForeignKey("batches.id"), primary_key=True)
+    position: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(200))
+    request_json: Mapped[str] = mapped_column(Text)
+    status: Mapped[str] = mapped_column(String(8), index=True)
+    claim: Mapped[str | None] = mapped_column(String(32), nullable=True)
+    claimed_at: Mapped[datetime | None] = mapped_column(UTCDateTime, nullable=True)
+    finished_at: Mapped[datetime | None] = mapped_column(UTCDateTime, nullable=True)
+    assessment_id: Mapped[uuid.UUID | None] = mapped_column(Uuid, ForeignKey("assessments.id"), nullable=True)
+    verdict: Mapped[str | None] = mapped_column(String(4), nullable=True)
+    max_e_kv_m: Mapped[float | None] = mapped_column(Float, nullable=True)
+    max_b_ut: Mapped[float | None] = mapped_column(Float, nullable=True)
+    worst_exposure_index: Mapped[float | None] = mapped_column(Float, nullable=True)
+    problem_json: Mapped[str | None] = mapped_column(Text, nullable=True)
+
+    def problem(self) -> dict[str, Any] | None:
+        return json.loads(self.problem_json) if self.problem_json else None
 
 
 @event.listens_for(AssessmentRecord, "before_update")

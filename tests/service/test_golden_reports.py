@@ -96,7 +96,7 @@ def test_records_stored_before_still_verify(tmp_path) -> None:
     db = tmp_path / "records.sqlite3"
     with gzip.open(HERE / "records.sqlite3.gz", "rb") as src, open(db, "wb") as dst:
         shutil.copyfileobj(src, dst)
-    app = create_app({"TESTING": True, "DATABASE_URL": f"sqlite:///{db}", "MIGRATE_ON_START": False})
+    app = create_app({"TESTING": True, "DATABASE_URL": f"sqlite:///{db}"})  # migrated to head on start
     try:
         client = app.test_client()
         listed = client.get("/v1/assessments?limit=10").get_json()["data"]

@@ -30,7 +30,9 @@ from service.storage import GENESIS_DIGEST, Base
 from tests.service.test_api import small_body
 
 ROOT = Path(__file__).resolve().parents[2]
-SERVICE_TABLES = {"assessments", "chain_head"}
+SERVICE_TABLES = {"assessments", "chain_head", "batches", "batch_items"}
+LEGACY_TABLES = {"assessments", "chain_head"}  # what create_all made before migrations (revision 0001)
+HEAD = schema_migrations.head_revision()
 
 
 def start(db_url: str, **settings):
@@ -66,11 +68,12 @@ def revisions(engine) -> tuple[str, ...]:
 def legacy_schema(engine) -> None:
     """What ``create_schema`` did before migrations: ``create_all`` plus the chain-head row.
 
-    Valid while the models equal revision 0001; when a later revision changes them, build
-    this database from revision 0001's DDL instead (``upgrade 0001`` then drop the version table).
+    Only the two tables of that time (revision 0001). Valid while the models of those two tables
+    equal revision 0001; when a later revision changes them, build this database from revision
+    0001's DDL instead (``upgrade 0001`` then drop the version table).
     """
     with engine.begin() as conn:
-        Base.metadata.create_all(conn)
+        Base.metadata.create_all(conn, tables=[storage.AssessmentRecord.__table__, storage.ChainHead.__table__])
         conn.execute(storage.ChainHead.__table__.insert().values(id=1, sequence=0, digest=GENESIS_DIGEST))
 
 
@@ -92,11 +95,11 @@ def test_legacy_database_is_stamped_upgraded_and_keeps_its_chain(engine, db_url)
     report = build_report(load_assessment_request(small_body(), max_points=20_001, max_conductors=64))
     with storage.sessionmaker(engine, expire_on_commit=False)() as session, session.begin():
         old = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
-    assert tables(engine) == SERVICE_TABLES  # no version table: the pre-migration layout
+    assert tables(engine) == LEGACY_TABLES  # no version table: the pre-migration layout
 
     app = start(db_url)
     client = app.test_client()
-    assert revisions(engine) == (INITIAL_REVISION,) and differences(engine) == []
+    assert revisions(engine) == (HEAD,) and differences(engine) == []
     stored = client.get(f"/v1/assessments/{old.id}")
     assert stored.status_code == 200 and stored.get_json()["digest"] == old.digest
     assert client.post(f"/v1/assessments/{old.id}/verify").get_json()["verdict"] == "match"
@@ -120,7 +123,7 @@ def test_downgrade_to_base_drops_the_tables_and_upgrade_restores_them(engine):
     assert tables(engine) - {schema_migrations.VERSION_TABLE} == set()
     assert revisions(engine) == ()
     storage.create_schema(engine)
-    assert differences(engine) == [] and revisions(engine) == (INITIAL_REVISION,)
+    assert differences(engine) == [] and revisions(engine) == (HEAD,)
 
 
 def test_concurrent_start_up_migrates_once(db_url, engine, caplog):
@@ -144,8 +147,9 @@ def test_concurrent_start_up_migrates_once(db_url, engine, caplog):
         t.join(timeout=60)  # without the lock the two migrations deadlock or collide
     assert not any(t.is_alive() for t in threads) and not errors, errors
     ran = [r.getMessage() for r in caplog.records if r.getMessage().startswith("Running upgrade")]
-    assert len(ran) == 1, ran
-    assert revisions(engine) == (INITIAL_REVISION,) and differences(engine) == []
+    # one instance ran every revision once; the other ran none
+    assert len(ran) == len(list(schema_migrations.script_directory().walk_revisions())), ran
+    assert revisions(engine) == (HEAD,) and differences(engine) == []
     with engine.connect() as conn:
         assert conn.execute(text("SELECT count(*) FROM chain_head")).scalar() == 1
     for app in apps:
@@ -161,9 +165,9 @@ def test_without_migrate_on_start_an_empty_database_is_refused(engine, db_url):
 
 def test_without_migrate_on_start_a_legacy_database_is_refused(engine, db_url):
     legacy_schema(engine)
-    with pytest.raises(SchemaStateError, match=r"tables created before migrations.*needs revision '0001'"):
+    with pytest.raises(SchemaStateError, match=rf"tables created before migrations.*needs revision '{HEAD}'"):
         start(db_url, MIGRATE_ON_START=False)
-    assert tables(engine) == SERVICE_TABLES
+    assert tables(engine) == LEGACY_TABLES
 
 
 def test_without_migrate_on_start_a_migrated_database_starts(engine, db_url):
@@ -178,7 +182,7 @@ def test_unknown_newer_revision_fails_start_up_and_changes_nothing(engine, db_ur
     storage.create_schema(engine)
     with engine.begin() as conn:
         conn.execute(text("UPDATE alembic_version SET version_num = '0042'"))
-    with pytest.raises(SchemaStateError, match=r"revision '0042'.*does not know.*newest revision is '0001'"):
+    with pytest.raises(SchemaStateError, match=rf"revision '0042'.*does not know.*newest revision is '{HEAD}'"):
         start(db_url, MIGRATE_ON_START=migrate_on_start)
     assert revisions(engine) == ("0042",) and tables(engine) >= SERVICE_TABLES
 
@@ -197,7 +201,7 @@ def test_migrate_command_on_a_sqlite_file(tmp_path):
     up = run("upgrade")
     assert up.returncode == 0, up.stderr
     assert "Running upgrade  -> 0001" in up.stderr
-    assert up.stdout.strip() == "Database at revision '0001' (head)."  # what `current` prints at head
+    assert up.stdout.strip() == f"Database at revision '{HEAD}' (head)."  # what `current` prints at head
     bad = run("upgrade", "0042")
     assert bad.returncode == 1 and "0042" in bad.stderr
     app = start(env["EMF_DATABASE_URL"], MIGRATE_ON_START=False)
@@ -223,3 +227,23 @@ def test_revision_scripts_are_package_data():
 def test_bad_migration_settings_fail_fast(settings, message):
     with pytest.raises(ValueError, match=message):
         create_app({"DATABASE_URL": "sqlite://", "WARM_UP_ENGINE": False, **settings})
+
+
+def test_batch_tables_upgrade_from_0001_with_records_present(engine, db_url):
+    schema_migrations.upgrade(engine, "0001")
+    assert tables(engine) == LEGACY_TABLES | {schema_migrations.VERSION_TABLE}
+    from service.report import build_report
+    from service.schemas import load_assessment_request
+
+    report = build_report(load_assessment_request(small_body(), max_points=20_001, max_conductors=64))
+    with storage.sessionmaker(engine, expire_on_commit=False)() as session, session.begin():
+        old = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    schema_migrations.upgrade(engine)
+    assert revisions(engine) == (HEAD,) and differences(engine) == [] and tables(engine) >= SERVICE_TABLES
+    schema_migrations.downgrade(engine, "0001")
+    assert tables(engine) == LEGACY_TABLES | {schema_migrations.VERSION_TABLE}
+    schema_migrations.upgrade(engine)
+    app = start(db_url)
+    client = app.test_client()
+    assert client.post(f"/v1/assessments/{old.id}/verify").get_json()["verdict"] == "match"
+    stop(app)
