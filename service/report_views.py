@@ -5,7 +5,8 @@
   ``text/csv`` (one row per point); ``?format=json|html|csv`` overrides ``Accept``.
   Anything else: 406 problem.
 * ``GET /v1/assessments/{id}/geojson`` -- ``application/geo+json`` for route
-  assessments; a cross-section assessment has no map geometry: 404 problem of type
+  assessments, RFC 7946 lon/lat (``?coordinates=native``: the request's projected
+  coordinates, not RFC 7946); a cross-section assessment has no map geometry: 404 problem of type
   :data:`NO_GEOMETRY` (the resource does not exist for it).
 * ``POST /v1/assessments/{id}/verify`` -- recompute with the current engine and
   catalogue, compare within :data:`service.audit.RTOL`/``ATOL``, check the digest.
@@ -69,6 +70,16 @@ def _negotiate() -> str:
     return best
 
 
+def _choice(name: str, allowed: tuple[str, ...], default: str) -> str:
+    """Query parameter ``name`` that must be one of ``allowed`` (400 problem naming it otherwise)."""
+    value = request.args.get(name, default)
+    if value not in allowed:
+        raise ProblemError(400, f"{name} must be one of {', '.join(allowed)}; instead received {value!r}.",
+                           type_=INVALID_PARAMETER, title="Invalid query parameter",
+                           errors=[{"parameter": name, "detail": f"Must be one of {', '.join(allowed)}."}])
+    return value
+
+
 class _RenderCache:
     """Rendered HTML/CSV by (record digest, format): stored records never change, so neither do their pages."""
 
@@ -130,12 +141,14 @@ def get_report(assessment_id: uuid.UUID) -> Response:
 def get_geojson(assessment_id: uuid.UUID) -> Response:
     """Evaluated points, receptors and exposure zones of a route assessment as GeoJSON."""
     record = _record(assessment_id)
+    native = _choice("coordinates", ("lonlat", "native"), "lonlat") == "native"
     try:
-        collection = reports.render_geojson(record.report())
+        collection = reports.render_geojson(record.report(), native=native)
     except reports.NotARouteReport as exc:
         raise ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
                            type_=NO_GEOMETRY, title="No map geometry") from None
-    return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record, "geojson",
+    return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record,
+                   "geojson-native" if native else "geojson",
                    filename=f"assessment-{assessment_id}.geojson", vary=False)
 
 
