@@ -8,6 +8,8 @@
   assessments, RFC 7946 lon/lat (``?coordinates=native``: the request's projected
   coordinates, not RFC 7946); a cross-section assessment has no map geometry: 404 problem of type
   :data:`NO_GEOMETRY` (the resource does not exist for it).
+* ``GET /v1/assessments/{id}/geopackage`` -- OGC GeoPackage (route CRS), route assessments.
+* ``GET /v1/assessments/{id}/geotiff`` -- GeoTIFF of the field grid, assessments with a grid.
 * ``POST /v1/assessments/{id}/verify`` -- recompute with the current engine and
   catalogue, compare within :data:`service.audit.RTOL`/``ATOL``, check the digest.
   Read-only: the record is never changed.
@@ -28,7 +30,7 @@ from marshmallow import Schema, fields, validate
 from sqlalchemy import select
 from werkzeug.exceptions import NotAcceptable, NotFound
 
-from . import audit, reports, storage
+from . import audit, export_geopackage, export_geotiff, reports, storage
 from .errors import INVALID_PARAMETER, ProblemError
 
 bp = Blueprint("reports", __name__)
@@ -145,11 +147,44 @@ def get_geojson(assessment_id: uuid.UUID) -> Response:
     try:
         collection = reports.render_geojson(record.report(), native=native)
     except reports.NotARouteReport as exc:
-        raise ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
-                           type_=NO_GEOMETRY, title="No map geometry") from None
+        raise _not_a_route(assessment_id, exc) from None
     return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record,
                    "geojson-native" if native else "geojson",
                    filename=f"assessment-{assessment_id}.geojson", vary=False)
+
+
+def _not_a_route(assessment_id: uuid.UUID, exc: Exception) -> ProblemError:
+    return ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
+                        type_=NO_GEOMETRY, title="No map geometry")
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/geopackage")
+def get_geopackage(assessment_id: uuid.UUID) -> Response:
+    """Route, supports, right-of-way edges, evaluated points, receptors and zones as an OGC GeoPackage."""
+    record = _record(assessment_id)
+    try:
+        body = export_geopackage.render_geopackage(record.report())
+    except reports.NotARouteReport as exc:
+        raise _not_a_route(assessment_id, exc) from None
+    response = _finish(body, export_geopackage.GEOPACKAGE_MIME, record, "gpkg",
+                       filename=f"assessment-{assessment_id}.gpkg", vary=False)
+    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.gpkg"'
+    return response
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/geotiff")
+def get_geotiff(assessment_id: uuid.UUID) -> Response:
+    """The field grid (E and B resultant bands) as GeoTIFF in the grid's CRS."""
+    record = _record(assessment_id)
+    try:
+        body = export_geotiff.render_geotiff(record.report())
+    except export_geotiff.NoGrid as exc:
+        raise ProblemError(404, f"Assessment {assessment_id}: {exc}", type_=NO_GEOMETRY,
+                           title="No field grid") from None
+    response = _finish(body, export_geotiff.GEOTIFF_MIME, record, "geotiff",
+                       filename=f"assessment-{assessment_id}.tif", vary=False)
+    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.tif"'
+    return response
 
 
 def _recompute(request_json: str) -> dict[str, Any]:
