@@ -22,7 +22,7 @@ from typing import Any
 import numpy as np
 import rasterio
 from rasterio.io import MemoryFile
-from rasterio.transform import from_origin
+from affine import Affine
 
 from . import geo_coordinates, reports
 
@@ -45,7 +45,7 @@ def grid_transform(grid: Mapping[str, Any]):
     x, y = grid["x_m"], grid["y_m"]
     dx = (x[-1] - x[0]) / (len(x) - 1) if len(x) > 1 else 1.0
     dy = (y[-1] - y[0]) / (len(y) - 1) if len(y) > 1 else 1.0
-    return from_origin(x[0] - dx / 2, y[-1] + dy / 2, dx, dy)
+    return Affine(dx, 0.0, x[0] - dx / 2, 0.0, -dy, y[-1] + dy / 2)
 
 
 def render_geotiff(report: Mapping[str, Any]) -> bytes:
