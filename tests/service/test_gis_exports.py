@@ -221,3 +221,46 @@ def test_receptor_point_is_where_the_report_puts_it(utm):
     lon, lat = Transformer.from_crs("EPSG:32632", "EPSG:4326", always_xy=True).transform(r0["x"], r0["y"])
     feature = next(f for f in fc["features"] if f["id"] == f"receptor:{r0['id']}")
     assert Point(feature["geometry"]["coordinates"]).distance(Point(lon, lat)) < 1e-9
+
+
+def test_plan_view_equal_ground_scale_labels_above_hatching_and_zones_without_colour(lonlat):
+    """Plan view of the lon/lat demo: one metre on the ground is as long east-west as north-south
+    (pyproj.Geod gives the metres), support labels sit in opaque boxes above every zone patch,
+    and each zone threshold has its own hatch pattern (distinguishable in black and white)."""
+    from matplotlib.patches import PathPatch
+
+    from service import plots
+
+    supports = lonlat["input"]["route"]["supports"]
+    zones = {"type": "FeatureCollection", "features": [
+        {**f, "properties": {**f["properties"], "label": f"{f['properties']['quantity']} "
+                                                          f"{f['properties']['threshold_id']}"}}
+        for f in zone_features(lonlat)]}
+    fig = plots.route_plan_figure(supports, zones=zones, geographic=True)
+    fig.canvas.draw()
+    ax = fig.axes[0]
+    lon0 = float(np.mean([s["x"] for s in supports]))
+    lat0 = float(np.mean([s["y"] for s in supports]))
+    d = 1e-3
+    geod = Geod(ellps="WGS84")
+    east_m = geod.inv(lon0, lat0, lon0 + d, lat0)[2]
+    north_m = geod.inv(lon0, lat0, lon0, lat0 + d)[2]
+    origin, east, north = ax.transData.transform([(lon0, lat0), (lon0 + d, lat0), (lon0, lat0 + d)])
+    px_per_m_east = np.hypot(*(east - origin)) / east_m
+    px_per_m_north = np.hypot(*(north - origin)) / north_m
+    assert px_per_m_east == pytest.approx(px_per_m_north, rel=0.01)
+    zone_patches = [p for p in ax.patches if isinstance(p, PathPatch)]
+    assert zone_patches
+    labels = [t for t in ax.texts if t.get_text() in {s["id"] for s in supports}]
+    assert len(labels) == len(supports)
+    for text in labels:
+        box = text.get_bbox_patch()
+        assert box is not None and box.get_facecolor()[:3] == (1.0, 1.0, 1.0) and box.get_alpha() >= 0.9
+        assert text.get_zorder() > max(p.get_zorder() for p in zone_patches)
+    hatch_by_label = {}
+    for p in zone_patches:
+        if p.get_label() and not p.get_label().startswith("_"):
+            hatch_by_label[p.get_label()] = p.get_hatch()
+    drawn = {f["properties"]["label"] for f in zones["features"] if f["geometry"].get("coordinates")}
+    assert len(hatch_by_label) == len(drawn) >= 2
+    assert len(set(hatch_by_label.values())) == len(hatch_by_label)
