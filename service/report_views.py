@@ -133,6 +133,9 @@ def get_report(assessment_id: uuid.UUID) -> Response:
              "CSV": url_for("reports.get_report", assessment_id=assessment_id, format="csv")}
     if reports.is_route_report(report):
         links["GeoJSON"] = url_for("reports.get_geojson", assessment_id=assessment_id)
+        links["GeoPackage"] = url_for("reports.get_geopackage", assessment_id=assessment_id)
+        if isinstance((report.get("results") or {}).get("grid"), dict):
+            links["GeoTIFF"] = url_for("reports.get_geotiff", assessment_id=assessment_id)
     text = _CACHE.get((record.digest, "html"), lambda: reports.render_html(report, links=links))
     response = _finish(text, "text/html", record, "html")
     response.headers["Content-Security-Policy"] = HTML_CSP

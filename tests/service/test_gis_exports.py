@@ -199,6 +199,8 @@ def test_exports_over_http(client):
     with rasterio.open(io.BytesIO(tif.data)) as src:
         assert src.crs.to_epsg() == 32632
     assert client.get(base + "/geojson?coordinates=native").get_json()["coordinate_reference"].startswith("EPSG:32632")
+    page = client.get(base + "/report?format=html").get_data(as_text=True)
+    assert f'href="{base}/geopackage"' in page and f'href="{base}/geotiff"' in page  # linked from the page
     bad = client.get(base + "/geojson?coordinates=utm")
     assert bad.status_code == 400 and bad.get_json()["errors"][0]["parameter"] == "coordinates"
 
