@@ -14,8 +14,10 @@ from __future__ import annotations
 
 import math
 import os
+import sqlite3
 import tempfile
 from collections.abc import Mapping, Sequence
+from contextlib import closing
 from typing import Any
 
 import numpy as np
@@ -61,6 +63,15 @@ def _layer_table(features: Sequence[Mapping[str, Any]], geometry_type: str):
     return names, columns, shapely.to_wkb(np.array(geoms, dtype=object))
 
 
+def _stamp(path: str, report: Mapping[str, Any]) -> None:
+    """Set ``gpkg_contents.last_change`` (GDAL writes the clock) to the report's ``created_at``,
+    so that one stored record always gives the same bytes (ETag = record digest)."""
+    created = str(report.get("created_at") or "1970-01-01T00:00:00.000Z")
+    stamp = created[:23].rstrip("Z") + "Z" if "." in created else created
+    with closing(sqlite3.connect(path)) as db, db:
+        db.execute("UPDATE gpkg_contents SET last_change = ?", (stamp,))
+
+
 def render_geopackage(report: Mapping[str, Any]) -> bytes:
     """The route assessment as GeoPackage bytes (route CRS).
 
@@ -86,5 +97,6 @@ def render_geopackage(report: Mapping[str, Any]) -> bytes:
                               geometry_type=geometry_type, crs=crs, append=written > 0,
                               layer_options={"FID": "fid"})
             written += 1
+        _stamp(path, report)
         with open(path, "rb") as fh:
             return fh.read()

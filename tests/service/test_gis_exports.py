@@ -266,3 +266,20 @@ def test_plan_view_equal_ground_scale_labels_above_hatching_and_zones_without_co
     drawn = {f["properties"]["label"] for f in zones["features"] if f["geometry"].get("coordinates")}
     assert len(hatch_by_label) == len(drawn) >= 2
     assert len(set(hatch_by_label.values())) == len(hatch_by_label)
+
+
+def test_exports_are_the_same_bytes_for_the_same_record(utm, tmp_path):
+    """Stored records never change, so neither do their exports (the ETag is the record digest):
+    GDAL's clock in the GeoPackage (gpkg_contents.last_change) is replaced by the report's created_at."""
+    import sqlite3
+    import time
+    from contextlib import closing
+
+    first = export_geopackage.render_geopackage(utm), export_geotiff.render_geotiff(utm)
+    time.sleep(1.1)
+    assert (export_geopackage.render_geopackage(utm), export_geotiff.render_geotiff(utm)) == first
+    path = tmp_path / "stamp.gpkg"
+    path.write_bytes(first[0])
+    with closing(sqlite3.connect(path)) as db:
+        stamps = {row[0] for row in db.execute("SELECT last_change FROM gpkg_contents")}
+    assert stamps == {"2026-12-01T00:00:00.000Z"}
