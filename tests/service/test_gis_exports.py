@@ -25,6 +25,7 @@ import pyogrio.raw
 import pytest
 import rasterio
 import shapely
+import yaml
 from geojson_pydantic import FeatureCollection
 from pyproj import CRS, Geod
 from rasterio.io import MemoryFile
@@ -206,12 +207,25 @@ def test_exports_over_http(client):
 
 
 def test_cross_section_has_no_geopackage_or_geotiff(client):
+    from tests.service.test_openapi import SPEC_PATH, check_response
+
+    spec = yaml.safe_load(SPEC_PATH.read_text(encoding="utf-8"))
     body = json.loads((EXAMPLES / "demo_cross_section.json").read_text(encoding="utf-8"))
     created = client.post("/v1/assessments", json=body)
     base = f"/v1/assessments/{created.get_json()['id']}"
     for suffix in ("geopackage", "geotiff"):
         r = client.get(f"{base}/{suffix}")
         assert r.status_code == 404 and r.get_json()["type"] == "urn:emf-assess:problem:no-geometry"
+        check_response(spec, r)  # the documented problem response
+
+
+def test_binary_exports_are_documented_with_their_media_types():
+    from tests.service.test_openapi import SPEC_PATH
+
+    paths = yaml.safe_load(SPEC_PATH.read_text(encoding="utf-8"))["paths"]
+    for suffix, mime in (("geopackage", export_geopackage.GEOPACKAGE_MIME), ("geotiff", export_geotiff.GEOTIFF_MIME)):
+        content = paths[f"/v1/assessments/{{assessment_id}}/{suffix}"]["get"]["responses"]["200"]["content"]
+        assert list(content) == [mime] and content[mime]["schema"] == {"type": "string", "format": "binary"}
 
 
 def test_receptor_point_is_where_the_report_puts_it(utm):
