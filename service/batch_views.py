@@ -37,7 +37,7 @@ class BatchSchema(Schema):
     title = fields.String(load_default="", validate=validate.Length(max=200))
     items = fields.List(fields.Nested(BatchItemSchema), required=True)
 
-    def __init__(self, *, max_items: int, **kwargs: Any):
+    def __init__(self, *, max_items: int = 500, **kwargs: Any):
         super().__init__(**kwargs)
         self.max_items = max_items
 

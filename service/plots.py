@@ -143,7 +143,7 @@ def _profile_panel(ax, offset_m: np.ndarray, values: np.ndarray, *, quantity: st
             ax.annotate(f"limit {_fmt(th.value, unit)}: {_label(th.label)}", xy=(0.01, th.value),
                         xycoords=("axes fraction", "data"), xytext=(2, 2), textcoords="offset points",
                         fontsize=_FONT_SIZE - 1, color=_INK, va="bottom", ha="left",
-                        bbox={"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
+                        bbox=_LABEL_BOX)
         else:
             off_scale.append(f"{_fmt(th.value, unit)}: {_label(th.label)}")
     if finite.any() and data_max > 0:
@@ -364,7 +364,7 @@ def cross_section_figure(cross_section: Mapping[str, Any], *, evaluation_heights
             ax.annotate(f"{_label(cond.get('phase', ''))} ({x:+.1f}, {y:.1f})", xy=(x, y),
                         xytext=(7 * side, lift), textcoords="offset points",
                         ha={-1: "right", 0: "center", 1: "left"}[side], va="center" if side else "bottom", fontsize=_FONT_SIZE - 1.5, color=_INK, zorder=5,
-                        bbox={"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
+                        bbox=_LABEL_BOX)
     for k, wire in enumerate(earth):
         x, y = float(wire["offset_m"]), float(wire["height_m"])
         ax.plot([x], [y], marker="^", markersize=7, color=_INK, markerfacecolor="white", linestyle="none",
@@ -471,6 +471,9 @@ def _polygon_path(rings: list[list[tuple[float, float]]]) -> MplPath:
     return MplPath(np.array(verts, dtype=float), codes)
 
 
+_LABEL_BOX = {"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.9}
+
+
 def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[tuple[float, float]] | None = None,
                    receptors: Sequence[Mapping[str, Any]] = (), zones: Mapping[str, Any] | None = None,
                    geographic: bool = False, edges: Sequence[Sequence[tuple[float, float]]] = ()) -> Figure:
@@ -531,7 +534,8 @@ def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[t
             label="support", zorder=4)
     for s in supports:
         ax.annotate(_label(s.get("id", "")), xy=(float(s["x"]), float(s["y"])), xytext=(5, 5),
-                    textcoords="offset points", fontsize=_FONT_SIZE - 1, color=_INK, zorder=5)
+                    textcoords="offset points", fontsize=_FONT_SIZE - 1, color=_INK, zorder=6,
+                    bbox=_LABEL_BOX)  # an opaque box: zone hatching never runs through the label
     for k, edge in enumerate(edges):
         e = np.asarray(edge, dtype=float)
         ax.plot(e[:, 0], e[:, 1], color=_INK, linewidth=0.9, linestyle=(0, (4, 1, 1, 1)),
@@ -548,7 +552,7 @@ def route_plan_figure(supports: Sequence[Mapping[str, Any]], *, path: Sequence[t
                 label=("receptor" if k == 0 else None))
         ax.annotate(_label(r.get("name") or r.get("id", "")), xy=(x, y), xytext=(5, -10), textcoords="offset points",
                     fontsize=_FONT_SIZE - 1, color=_INK, zorder=6,
-                    bbox={"boxstyle": "round,pad=0.1", "facecolor": "white", "edgecolor": "none", "alpha": 0.8})
+                    bbox=_LABEL_BOX)
     ax.autoscale_view()
     if geographic:
         lat = float(np.mean(sy))

@@ -5,8 +5,11 @@
   ``text/csv`` (one row per point); ``?format=json|html|csv`` overrides ``Accept``.
   Anything else: 406 problem.
 * ``GET /v1/assessments/{id}/geojson`` -- ``application/geo+json`` for route
-  assessments; a cross-section assessment has no map geometry: 404 problem of type
+  assessments, RFC 7946 lon/lat (``?coordinates=native``: the request's projected
+  coordinates, not RFC 7946); a cross-section assessment has no map geometry: 404 problem of type
   :data:`NO_GEOMETRY` (the resource does not exist for it).
+* ``GET /v1/assessments/{id}/geopackage`` -- OGC GeoPackage (route CRS), route assessments.
+* ``GET /v1/assessments/{id}/geotiff`` -- GeoTIFF of the field grid, assessments with a grid.
 * ``POST /v1/assessments/{id}/verify`` -- recompute with the current engine and
   catalogue, compare within :data:`service.audit.RTOL`/``ATOL``, check the digest.
   Read-only: the record is never changed.
@@ -28,7 +31,7 @@ from werkzeug.exceptions import NotAcceptable, NotFound
 
 from models.errors import EngineInputError
 
-from . import audit, reports, storage
+from . import audit, export_geopackage, export_geotiff, reports, storage
 from .errors import ProblemError
 from .inputs import ChainQuerySchema, invalid_parameter, load_query
 from .json_text import plain
@@ -70,6 +73,15 @@ def _negotiate() -> str:
         raise NotAcceptable("This report is available as application/json, text/html or text/csv "
                             "(or choose with ?format=json|html|csv).")
     return best
+
+
+def _choice(name: str, allowed: tuple[str, ...], default: str) -> str:
+    """Query parameter ``name`` that must be one of ``allowed`` (400 problem naming it otherwise)."""
+    value = request.args.get(name, default)
+    if value not in allowed:
+        raise invalid_parameter(name, f"Must be one of {', '.join(allowed)}.",
+                                f"{name} must be one of {', '.join(allowed)}; instead received {value!r}.")
+    return value
 
 
 class _RenderCache:
@@ -123,6 +135,9 @@ def get_report(assessment_id: uuid.UUID) -> Response:
              "CSV": url_for("reports.get_report", assessment_id=assessment_id, format="csv")}
     if reports.is_route_report(report):
         links["GeoJSON"] = url_for("reports.get_geojson", assessment_id=assessment_id)
+        links["GeoPackage"] = url_for("reports.get_geopackage", assessment_id=assessment_id)
+        if isinstance((report.get("results") or {}).get("grid"), dict):
+            links["GeoTIFF"] = url_for("reports.get_geotiff", assessment_id=assessment_id)
     text = _CACHE.get((record.digest, "html"), lambda: reports.render_html(report, links=links))
     response = _finish(text, "text/html", record, "html")
     response.headers["Content-Security-Policy"] = HTML_CSP
@@ -133,13 +148,48 @@ def get_report(assessment_id: uuid.UUID) -> Response:
 def get_geojson(assessment_id: uuid.UUID) -> Response:
     """Evaluated points, receptors and exposure zones of a route assessment as GeoJSON."""
     record = _record(assessment_id)
+    native = _choice("coordinates", ("lonlat", "native"), "lonlat") == "native"
     try:
-        collection = reports.render_geojson(record.report())
+        collection = reports.render_geojson(record.report(), native=native)
     except reports.NotARouteReport as exc:
-        raise ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
-                           type_=NO_GEOMETRY, title="No map geometry") from None
-    return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record, "geojson",
+        raise _not_a_route(assessment_id, exc) from None
+    return _finish(json.dumps(collection, ensure_ascii=False), reports.GEOJSON_MIME, record,
+                   "geojson-native" if native else "geojson",
                    filename=f"assessment-{assessment_id}.geojson", vary=False)
+
+
+def _not_a_route(assessment_id: uuid.UUID, exc: Exception) -> ProblemError:
+    return ProblemError(404, f"Assessment {assessment_id} is a cross-section assessment: {exc}",
+                        type_=NO_GEOMETRY, title="No map geometry")
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/geopackage")
+def get_geopackage(assessment_id: uuid.UUID) -> Response:
+    """Route, supports, right-of-way edges, evaluated points, receptors and zones as an OGC GeoPackage."""
+    record = _record(assessment_id)
+    try:
+        body = export_geopackage.render_geopackage(record.report())
+    except reports.NotARouteReport as exc:
+        raise _not_a_route(assessment_id, exc) from None
+    response = _finish(body, export_geopackage.GEOPACKAGE_MIME, record, "gpkg",
+                       filename=f"assessment-{assessment_id}.gpkg", vary=False)
+    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.gpkg"'
+    return response
+
+
+@bp.get("/v1/assessments/<uuid:assessment_id>/geotiff")
+def get_geotiff(assessment_id: uuid.UUID) -> Response:
+    """The field grid (E and B resultant bands) as GeoTIFF in the grid's CRS."""
+    record = _record(assessment_id)
+    try:
+        body = export_geotiff.render_geotiff(record.report())
+    except export_geotiff.NoGrid as exc:
+        raise ProblemError(404, f"Assessment {assessment_id}: {exc}", type_=NO_GEOMETRY,
+                           title="No field grid") from None
+    response = _finish(body, export_geotiff.GEOTIFF_MIME, record, "geotiff",
+                       filename=f"assessment-{assessment_id}.tif", vary=False)
+    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.tif"'
+    return response
 
 
 def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:

@@ -24,7 +24,7 @@ from collections.abc import Iterable, Mapping, Sequence
 from functools import lru_cache
 from typing import Any
 
-from . import plots
+from . import geo_coordinates, plots
 
 HTML_MIME = "text/html"
 CSV_MIME = "text/csv"
@@ -276,34 +276,99 @@ def is_geographic_crs(crs: str | None) -> bool:
                                                            "URN:OGC:DEF:CRS:OGC:1.3:CRS84"}
 
 
-def _point_feature(kind: str, row: Mapping[str, Any], exposure: list, extra: Mapping[str, Any] | None = None) -> dict:
+def _verdict(props: Mapping[str, Any]) -> str | None:
+    """``pass``/``fail`` from a feature's exposure indices (fail when any exceeds 1), ``None`` without any."""
+    indices = [v for k, v in props.items() if k.startswith("exposure_index:") and isinstance(v, float)]
+    return None if not indices else ("fail" if max(indices) > 1.0 else "pass")
+
+
+def _point_feature(kind: str, fid: str, row: Mapping[str, Any], exposure: list) -> dict:
     props = {"kind": kind, **{k: v for k, v in _flatten(row).items() if k not in ("x", "y")}}
     for name, key, _, limit in exposure:
         value = row.get(key)
         if isinstance(value, (int, float)) and not isinstance(value, bool):
             props[name] = float(value) / limit
-    if extra:
-        props.update(extra)
-    return {"type": "Feature", "geometry": {"type": "Point", "coordinates": [float(row["x"]), float(row["y"])]},
-            "properties": props}
+    props["verdict"] = _verdict(props)
+    return {"type": "Feature", "id": fid,
+            "geometry": {"type": "Point", "coordinates": [float(row["x"]), float(row["y"])]}, "properties": props}
 
 
-def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
-    """FeatureCollection of a route assessment, in the request's coordinates.
+def zone_properties(zone: Mapping[str, Any]) -> dict[str, Any]:
+    """A zone's properties with the flat members GIS users filter on: ``threshold_id``, ``quantity``,
+    ``value`` and ``unit`` (the limit in presentation units) and ``verdict`` (``inside_exceeds``: the
+    zone is where the field exceeds the limit)."""
+    props = dict(zone.get("properties") or {})
+    unit = props.get("unit") or ("kV/m" if props.get("quantity") == "E" else "µT")
+    value = props.get("limit_kv_m", props.get("limit_ut"))
+    return {"kind": "zone", **props, "unit": unit, "value": value, "verdict": "inside_exceeds"}
 
-    Features: the route centre line (LineString through the supports) and supports,
-    the right-of-way edges when given (LineString, vertices at the supports, with the
-    largest E and B along the edge), every evaluated path / lateral-profile / grid /
-    right-of-way point that carries ``x``/``y`` (Point, properties = the point's values
-    and exposure indices), receptors (Point with ``id``, ``name``, values), and the
-    exposure zones (Polygon/MultiPolygon, right-hand rule).  Every feature has a
-    ``kind`` property (``route``, ``support``, ``right_of_way_edge``, ``path``,
-    ``lateral_profile``, ``grid``, ``right_of_way``, ``receptor``, ``zone``).
 
-    Coordinates are those of the request: lon/lat degrees when the request was in
-    EPSG:4326 (RFC 7946's own CRS).  For a projected or local CRS they stay in metres
-    of that CRS, and the foreign member ``coordinate_reference`` says so, since RFC 7946
-    itself only knows lon/lat.
+def zone_id(props: Mapping[str, Any], k: int) -> str:
+    return f"zone:{props.get('threshold_id', k)}:{props.get('quantity', '')}"
+
+
+def route_features(report: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Every feature of a route report in the request's coordinates, each with a stable ``id``.
+
+    ids: ``route``, ``support:<id>``, ``right_of_way_edge:<left|right>``, ``<set>:<index>``
+    (path, lateral_profile, grid, right_of_way), ``receptor:<id>``, ``zone:<threshold>:<E|B>``.
+    """
+    exposure = exposure_columns(report)
+    features: list[dict[str, Any]] = []
+    route = (report.get("input") or {}).get("route") or {}
+    supports = route.get("supports") or []
+    if len(supports) >= 2:
+        features.append({"type": "Feature", "id": "route", "properties": {"kind": "route"},
+                         "geometry": {"type": "LineString",
+                                      "coordinates": [[float(s["x"]), float(s["y"])] for s in supports]}})
+    for k, s in enumerate(supports):
+        features.append({"type": "Feature", "id": f"support:{s.get('id', k)}",
+                         "properties": {"kind": "support", "id": s.get("id")},
+                         "geometry": {"type": "Point", "coordinates": [float(s["x"]), float(s["y"])]}})
+    for edge in (report.get("right_of_way") or {}).get("edges", ()):
+        geom = edge.get("geometry")
+        if isinstance(geom, Mapping) and geom.get("type") == "LineString":
+            props = {"kind": "right_of_way_edge", "edge": edge.get("edge"), "offset_m": edge.get("offset_m"),
+                     "height_m": edge.get("height_m"), "e_kv_m": edge.get("e_kv_m"), "b_ut": edge.get("b_ut")}
+            for item in edge.get("exposure") or ():
+                props[f"exposure_index:{item['level_id']}:{item['quantity']}"] = float(item["exposure_index"])
+            props["verdict"] = _verdict(props)
+            features.append({"type": "Feature", "id": f"right_of_way_edge:{edge.get('edge')}",
+                             "properties": props, "geometry": dict(geom)})
+    for name, rows in point_sets(report):
+        kind = "receptor" if name == "receptors" else name
+        if name == "grid" and len(rows) > MAX_GEOJSON_GRID_POINTS:
+            continue
+        for i, row in enumerate(rows):
+            if "x" in row and "y" in row:
+                fid = f"receptor:{row.get('id', i)}" if kind == "receptor" else f"{kind}:{i}"
+                features.append(_point_feature(kind, fid, row, exposure))
+    for k, zone in enumerate((report.get("zones") or {}).get("features", ()) or ()):
+        geom = zone.get("geometry")
+        if not geom:
+            continue
+        props = zone_properties(zone)
+        features.append({"type": "Feature", "id": zone_id(props, k), "properties": props,
+                         "geometry": right_hand_rule(geom)})
+    return features
+
+
+def render_geojson(report: Mapping[str, Any], *, native: bool = False) -> dict[str, Any]:
+    """FeatureCollection of a route assessment: RFC 7946, WGS 84 lon/lat.
+
+    Features (see :func:`route_features`): the route centre line and supports, the
+    right-of-way edges, every evaluated path / lateral-profile / grid / right-of-way
+    point that carries ``x``/``y`` (properties = the point's values, exposure indices
+    and ``verdict``), receptors, and the exposure zones (Polygon/MultiPolygon,
+    right-hand rule, with ``threshold_id``, ``quantity``, ``value``, ``unit``).  Every
+    feature has a stable ``id`` and a ``kind`` property.
+
+    Coordinates from a projected request CRS are transformed to lon/lat with pyproj
+    (RFC 7946 section 4), and zone rings re-wound after the transformation.
+    ``native=True`` keeps the request's own coordinates (metres of a projected CRS):
+    that output is *not* RFC 7946, and the foreign member ``coordinate_reference``
+    names the CRS.  A request in local metres without a CRS cannot be placed on the
+    earth: its export is always native.
 
     Raises
     ------
@@ -313,47 +378,26 @@ def render_geojson(report: Mapping[str, Any]) -> dict[str, Any]:
     if not is_route_report(report):
         raise NotARouteReport("A cross-section assessment has offsets across the line, not map geometry; "
                               "GeoJSON exists for route assessments only.")
-    exposure = exposure_columns(report)
-    features: list[dict[str, Any]] = []
-    route = (report.get("input") or {}).get("route") or {}
-    supports = route.get("supports") or []
-    if len(supports) >= 2:
-        features.append({"type": "Feature", "properties": {"kind": "route"},
-                         "geometry": {"type": "LineString",
-                                      "coordinates": [[float(s["x"]), float(s["y"])] for s in supports]}})
-    for s in supports:
-        features.append({"type": "Feature", "properties": {"kind": "support", "id": s.get("id")},
-                         "geometry": {"type": "Point", "coordinates": [float(s["x"]), float(s["y"])]}})
-    for edge in (report.get("right_of_way") or {}).get("edges", ()):
-        geom = edge.get("geometry")
-        if isinstance(geom, Mapping) and geom.get("type") == "LineString":
-            props = {"kind": "right_of_way_edge", "edge": edge.get("edge"), "offset_m": edge.get("offset_m"),
-                     "height_m": edge.get("height_m"), "e_kv_m": edge.get("e_kv_m"), "b_ut": edge.get("b_ut")}
-            features.append({"type": "Feature", "properties": props, "geometry": dict(geom)})
-    omitted = 0
-    for name, rows in point_sets(report):
-        kind = "receptor" if name == "receptors" else name
-        if name == "grid" and len(rows) > MAX_GEOJSON_GRID_POINTS:
-            omitted = len(rows)
-            continue
-        for row in rows:
-            if "x" in row and "y" in row:
-                features.append(_point_feature(kind, row, exposure))
-    for zone in (report.get("zones") or {}).get("features", ()) or ():
-        geom = zone.get("geometry")
-        if not geom:
-            continue
-        features.append({"type": "Feature", "properties": {"kind": "zone", **(zone.get("properties") or {})},
-                         "geometry": right_hand_rule(geom)})
-    crs = _route_crs(report)
+    features = route_features(report)
+    crs = geo_coordinates.request_crs(report)
+    lonlat = _is_geographic(report)
+    if not lonlat and crs and not native:
+        transformer = geo_coordinates.to_lonlat(crs)
+        for f in features:
+            geom = {**f["geometry"], "coordinates": geo_coordinates.transform_coordinates(
+                f["geometry"]["coordinates"], transformer)}
+            f["geometry"] = right_hand_rule(geom)
+        lonlat = True
     collection: dict[str, Any] = {"type": "FeatureCollection", "features": features}
+    omitted = sum(len(rows) for name, rows in point_sets(report)
+                  if name == "grid" and len(rows) > MAX_GEOJSON_GRID_POINTS)
     if omitted:
         collection["grid_points_omitted"] = (
             f"{omitted} grid points (more than {MAX_GEOJSON_GRID_POINTS}) are left out; the zones summarise "
-            "the grid, and the CSV export lists every node")
+            "the grid, and the CSV, GeoPackage and GeoTIFF exports hold every node")
     collection["assessment"] = {"id": report.get("id"), "title": report.get("title"),
                                 "reference": report.get("reference"), "outcome": report.get("outcome")}
-    if not _is_geographic(report):
+    if not lonlat:
         collection["coordinate_reference"] = (
             f"{crs}: projected coordinates in metres, as in the request (not RFC 7946 lon/lat)" if crs else
             "local coordinates in metres, as in the request (no CRS given; not RFC 7946 lon/lat)")

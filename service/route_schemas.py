@@ -301,7 +301,8 @@ class RouteRightOfWaySchema(RightOfWaySchema):
 class ZoneThresholdField(fields.Field):
     """A zone threshold: a catalogue id (string) or ``{"id", "value", "unit"}`` (unit decides E or B)."""
 
-    default_error_messages = {"invalid": "Give a reference-level id or an object with id, value and unit."}
+    # marshmallow formats these with str.format: literal braces must be doubled.
+    default_error_messages = {"invalid": "Give a reference-level id or an object {{id, value, unit}}."}
 
     def _deserialize(self, value: Any, attr: str | None, data: Any, **kwargs: Any) -> str | CustomZoneLimit:
         if isinstance(value, str):

@@ -265,9 +265,11 @@ def test_geojson_follows_rfc7946_and_loads_in_shapely():
     json.dumps(fc, allow_nan=False)
 
 
-def test_geojson_of_projected_route_says_which_coordinates():
+def test_geojson_of_projected_route_is_lonlat_unless_native_is_asked():
     fc = reports.render_geojson(route_report("EPSG:32632"))
-    assert "EPSG:32632" in fc["coordinate_reference"]
+    assert "coordinate_reference" not in fc  # transformed to lon/lat (RFC 7946 section 4)
+    native = reports.render_geojson(route_report("EPSG:32632"), native=True)
+    assert "EPSG:32632" in native["coordinate_reference"]
 
 
 def test_geojson_refuses_cross_section(report):
@@ -318,8 +320,8 @@ def real_route_report(request) -> dict:
 def test_real_route_geojson_is_rfc7946(real_route_report):
     rep = real_route_report
     fc = reports.render_geojson(rep)
-    geographic = rep["crs"]["geographic"]
-    assert ("coordinate_reference" in fc) is (not geographic)
+    assert "coordinate_reference" not in fc  # lon/lat for both demo routes
+    assert ("coordinate_reference" in reports.render_geojson(rep, native=True)) is (not rep["crs"]["geographic"])
     kinds = [f["properties"]["kind"] for f in fc["features"]]
     assert kinds.count("receptor") == len(rep["results"]["receptors"]) == 5
     assert kinds.count("path") == len(rep["results"]["path"])
@@ -328,12 +330,12 @@ def test_real_route_geojson_is_rfc7946(real_route_report):
     for f in fc["features"]:
         geom = shape(f["geometry"])
         assert geom.is_valid, f["properties"]
-        if geographic:  # RFC 7946: longitude, latitude in degrees
-            xs, ys = np.asarray(shapely.get_coordinates(geom)).reshape(-1, 2).T
-            assert np.all(np.abs(xs) <= 180) and np.all(np.abs(ys) <= 90)
+        xs, ys = np.asarray(shapely.get_coordinates(geom)).reshape(-1, 2).T  # RFC 7946: lon, lat in degrees
+        assert np.all(np.abs(xs) <= 180) and np.all(np.abs(ys) <= 90)
         for poly in getattr(geom, "geoms", [geom]) if f["properties"]["kind"] == "zone" else ():
             assert poly.exterior.is_ccw and not any(r.is_ccw for r in poly.interiors)
-    # Points are where the report says they are, in the request's coordinates.
+    # Points are where the report says they are, in the request's coordinates (native output).
+    fc = reports.render_geojson(rep, native=True)
     route_line = next(f for f in fc["features"] if f["properties"]["kind"] == "route")
     assert route_line["geometry"]["coordinates"] == [[s["x"], s["y"]] for s in rep["input"]["route"]["supports"]]
     first = next(f for f in fc["features"] if f["properties"]["kind"] == "receptor")

@@ -25,15 +25,22 @@ def _write(path: Path, text: str) -> None:
         fh.write(text.encode("utf-8"))
 
 
-def main() -> int:
+def main(argv: list[str] | None = None) -> int:
+    """``--only SUFFIX ...`` rewrites just those renderings (e.g. ``--only geojson`` after an intended GeoJSON change)."""
     from service import create_app
+
+    argv = sys.argv[1:] if argv is None else argv
+    only = set(argv[argv.index("--only") + 1:]) if "--only" in argv else None
 
     app = create_app({"TESTING": True, "DATABASE_URL": "sqlite://", "WARM_UP_ENGINE": False})
     client = app.test_client()
     for name, body in scenarios().items():
         for suffix, text in rendered(client, body).items():
-            _write(HERE / f"{name}.{suffix}.gz", text)
+            if only is None or suffix in only:
+                _write(HERE / f"{name}.{suffix}.gz", text)
         print("wrote", name)
+    if only is not None:
+        return 0
     with tempfile.TemporaryDirectory() as tmp:
         db = Path(tmp) / "records.sqlite3"
         app = create_app({"TESTING": True, "DATABASE_URL": f"sqlite:///{db}", "WARM_UP_ENGINE": False})
