@@ -1,7 +1,7 @@
 """Electric field of overhead conductors over flat, perfectly conducting ground.
 
 Charge simulation with Maxwell potential coefficients and ground images
-(check-values.md section 7.1): the conductor voltages fix complex line charges
+(image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)): the conductor voltages fix complex line charges
 through ``V = P Q``; each charge and its image ``-Q`` below ground then give the
 field anywhere in the air.  Kernels are pure and vectorised, SI throughout, and
 do no input checks.  Coordinates: x = offset, y = height above ground (y > 0).
@@ -115,7 +115,7 @@ def electric_field_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, charge_c_per_m)
     Notes
     -----
     ``E = sum_k Q_k / (2 pi eps0) [(r - r_k)/|r - r_k|^2 - (r - r'_k)/|r - r'_k|^2]``
-    with image ``r'_k = (x_k, -y_k)`` (check-values.md section 7.1).  On the ground
+    with image ``r'_k = (x_k, -y_k)`` (image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)).  On the ground
     (y = 0) the horizontal terms cancel pairwise, so the field is vertical.  Points
     on a wire axis give inf/nan; callers must keep points outside the wires.
 

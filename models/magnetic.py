@@ -82,7 +82,7 @@ def flux_density_phasors(obs_x_m, obs_y_m, cond_x_m, cond_y_m, current_a, *,
     Notes
     -----
     Each wire contributes ``mu0 I / (2 pi rho^2) * (-(y - y_k), x - x_k)``
-    (Biot–Savart / Ampère for an infinite straight filament; check-values.md
+    (Biot–Savart / Ampère for an infinite straight filament; the row's provenance in models/data/reference_levels.json
     section 7.3).  The image term uses the same expression with the complex
     image height, i.e. its analytic continuation, as in Deri et al. (see
     :func:`complex_depth_m`).  Points on a wire axis give inf/nan; callers must

@@ -151,7 +151,7 @@ def equivalent_bundle_radius_m(bundle: Bundle) -> float:
     """Equivalent radius of a bundle for potential coefficients [m].
 
     ``r_eq = (n r A^(n-1))^(1/n)`` with subconductor radius r and bundle radius A
-    (Deno & Zaffanella [1]_, from memory; check-values.md section 7.2).  The
+    (Deno & Zaffanella [1]_, from memory).  The
     engine itself models subconductors explicitly; this is offered for reports
     and as the cross-check used in the tests.
 

@@ -32,8 +32,7 @@ GEOJSON_MIME = "application/geo+json"
 MAX_GEOJSON_GRID_POINTS = 20_000
 """Grids with more nodes are left out of the GeoJSON export (they are in the CSV)."""
 
-# General engineering facts about the models, stated in every report (check-values.md
-# section 9, "Model limits to state in reports"; from memory / common practice).
+# General engineering facts about the models, stated in every report (common practice; from memory).
 MODEL_LIMITS_2D: tuple[str, ...] = (
     "A two-dimensional model treats the conductors as infinitely long and parallel: it is exact only at "
     "mid-span of long level spans and overestimates the fields near supports, where the conductors are higher.",

@@ -36,7 +36,7 @@ References
 ----------
 .. [1] Catenary, level-span sag and conductor length: engineering handbook
    formulas, e.g. https://engineeringstuffs.com/important-formulas-in-sag-and-tension-calculations/
-   (see /work/shared/check-values.md, 7.4).
+   (catenary of a uniform flexible cable, common practice (any statics text)).
 .. [2] Uneven supports: equations (2)-(4) are derived above from the catenary
    (1); the low-point form (2) is the classical inclined-span result (common practice).
 """
@@ -102,7 +102,7 @@ def level_span_sag_m(span_m, c_m):
 
     References
     ----------
-    Engineering handbook catenary formula (check-values.md 7.4).
+    Engineering handbook catenary formula (catenary of a uniform flexible cable, common practice (any statics text)).
 
     Examples
     --------
@@ -133,7 +133,7 @@ def parabolic_sag_m(span_m, weight_n_per_m, horizontal_tension_n):
 
     References
     ----------
-    Engineering handbook parabolic sag formula (check-values.md 7.4).
+    Engineering handbook parabolic sag formula (catenary of a uniform flexible cable, common practice (any statics text)).
 
     Examples
     --------

@@ -1,6 +1,6 @@
 """Reference-level catalogue: every row re-checked against its published values.
 
-Sources: /work/shared/check-values.md section 0 (key table at 50/60 Hz), sections 1-5
+Sources: the provenance recorded for each row in models/data/reference_levels.json
 (documents, formulas, quotes).  Each expected value is written as printed in the
 source and compared at the printed precision (half a unit of the last digit).
 Status beside each value: SEEN (read in public text), MEMORY (from memory of the
@@ -51,7 +51,7 @@ def limit_si(level_id: str, quantity: str, frequency_hz: float) -> float:
 ROWS = [
     pytest.param(
         "icnirp-1998-public",
-        # ICNIRP 1998 Table 7 (Health Phys. 74(4):494-522), check-values.md §0/§1:
+        # ICNIRP 1998 Table 7 (Health Phys. 74(4):494-522), the row's provenance in models/data/reference_levels.json:
         # 5 kV/m and 100 µT at 50 Hz SEEN; 83.3 µT at 60 Hz SEEN ("833 mG");
         # 4.17 kV/m at 60 Hz DERIVED from the MEMORY formula 250/f(kHz).
         {(50, "E"): ("5", "kV/m"), (60, "E"): ("4.17", "kV/m"), (50, "B"): ("100", "µT"), (60, "B"): ("83.3", "µT")},
@@ -65,7 +65,7 @@ ROWS = [
     ),
     pytest.param(
         "icnirp-2010-public",
-        # ICNIRP 2010 Table 4 (Health Phys. 99(6):818-836), check-values.md §0/§2: all SEEN
+        # ICNIRP 2010 Table 4 (Health Phys. 99(6):818-836), the row's provenance in models/data/reference_levels.json: all SEEN
         # (BBEMG 50 Hz page; emftesting.net 60 Hz "4167 V/m", "2 Gauss").
         {(50, "E"): ("5", "kV/m"), (60, "E"): ("4.17", "kV/m"), (50, "B"): ("200", "µT"), (60, "B"): ("200", "µT")},
         id="icnirp-2010-public",
@@ -78,7 +78,7 @@ ROWS = [
     ),
     pytest.param(
         "ieee-c95.1-2019-unrestricted",
-        # IEEE C95.6-2002 / C95.1-2019, check-values.md §0/§3: B 904 µT head and torso SEEN
+        # IEEE C95.6-2002 / C95.1-2019, the row's provenance in models/data/reference_levels.json: B 904 µT head and torso SEEN
         # (emfs.info ICES 2002 page); E 5 kV/m MEMORY.
         {(50, "E"): ("5", "kV/m"), (60, "E"): ("5", "kV/m"), (50, "B"): ("904", "µT"), (60, "B"): ("904", "µT")},
         id="ieee-c95.1-2019-unrestricted",
@@ -105,7 +105,7 @@ ROWS = [
     pytest.param(
         "eu-1999-519-public",
         # Council Rec. 1999/519/EC Annex III: "identical to ICNIRP ... 100 µT and 5 kV m-1" at 50 Hz SEEN;
-        # 60 Hz values from the MEMORY formulas 250/f, 5/f (f in kHz), as ICNIRP 1998 (check-values.md §0).
+        # 60 Hz values from the MEMORY formulas 250/f, 5/f (f in kHz), as ICNIRP 1998 (the row's provenance in models/data/reference_levels.json).
         {(50, "E"): ("5", "kV/m"), (60, "E"): ("4.17", "kV/m"), (50, "B"): ("100", "µT"), (60, "B"): ("83.3", "µT")},
         id="eu-1999-519-public",
     ),
@@ -113,7 +113,7 @@ ROWS = [
         "eu-2013-35-low-al",
         # Directive 2013/35/EU Annex II Tables B1/B2: 10 kV/m, 1000 µT at 50 Hz SEEN (BBEMG);
         # formulas 5.0e5/f V/m and 1000 µT (25-300 Hz) SEEN (SI 2016/1026 Table AL1, Norwegian Tabell 5.2);
-        # 60 Hz values DERIVED (check-values.md §4).
+        # 60 Hz values DERIVED (the row's provenance in models/data/reference_levels.json).
         {(50, "E"): ("10", "kV/m"), (60, "E"): ("8.33", "kV/m"), (50, "B"): ("1000", "µT"), (60, "B"): ("1000", "µT")},
         id="eu-2013-35-low-al",
     ),
@@ -187,7 +187,7 @@ ROWS = [
     ),
     pytest.param(
         "si-uredba-1996-area-ii",
-        # Slovenia Area II: 100 µT, 10 kV/m MEMORY (check-values.md §5).
+        # Slovenia Area II: 100 µT, 10 kV/m MEMORY (the row's provenance in models/data/reference_levels.json).
         {(50, "E"): ("10", "kV/m"), (50, "B"): ("100", "µT"), (60, "E"): None},
         id="si-uredba-1996-area-ii",
     ),
@@ -211,7 +211,7 @@ ROWS = [
     ),
     pytest.param(
         "us-fl-62-814-230kv-within-row",
-        # Florida, within ROW, <= 230 kV: 8 kV/m MEMORY (check-values.md §5).
+        # Florida, within ROW, <= 230 kV: 8 kV/m MEMORY (the row's provenance in models/data/reference_levels.json).
         {(60, "E"): ("8", "kV/m"), (50, "E"): None},
         id="us-fl-62-814-230kv-within-row",
     ),
@@ -241,7 +241,7 @@ ROWS = [
     ),
     pytest.param(
         "acgih-tlv",
-        # ACGIH TLV (not law): 25 kV/m; 1.2 mT at 50 Hz, 1 mT at 60 Hz whole body SEEN (check-values.md §0).
+        # ACGIH TLV (not law): 25 kV/m; 1.2 mT at 50 Hz, 1 mT at 60 Hz whole body SEEN (the row's provenance in models/data/reference_levels.json).
         {(50, "E"): ("25", "kV/m"), (60, "E"): ("25", "kV/m"), (50, "B"): ("1.2", "mT"), (60, "B"): ("1", "mT")},
         id="acgih-tlv",
     ),
@@ -276,7 +276,7 @@ def test_required_ids_present():
 
 
 def test_100_vs_200_ut_trap():
-    # check-values.md §10.1/10.2: public B at 50 Hz is 100 µT (ICNIRP 1998) but 200 µT (ICNIRP 2010);
+    # the row's provenance in models/data/reference_levels.json: public B at 50 Hz is 100 µT (ICNIRP 1998) but 200 µT (ICNIRP 2010);
     # the 1998 value falls with frequency (83.3 µT at 60 Hz), the 2010 value is flat 25-400 Hz.
     assert limit_si("icnirp-1998-public", "B", 50) == pytest.approx(100e-6, rel=1e-12)
     assert limit_si("icnirp-2010-public", "B", 50) == pytest.approx(200e-6, rel=1e-12)
@@ -286,14 +286,14 @@ def test_100_vs_200_ut_trap():
 
 
 def test_1998_formulas_use_khz_converted_to_hz():
-    # ICNIRP 1998 Table 7 prints B = 5/f µT with f in kHz (MEMORY; check-values.md §1):
-    # at 150 Hz that is 5/0.15 = 33.3 µT (DERIVED in check-values.md §2), not 5/150.
+    # ICNIRP 1998 Table 7 prints B = 5/f µT with f in kHz (MEMORY; the row's provenance in models/data/reference_levels.json):
+    # at 150 Hz that is 5/0.15 = 33.3 µT (DERIVED in the row's provenance in models/data/reference_levels.json), not 5/150.
     assert limit_si("icnirp-1998-public", "B", 150) == pytest.approx(5 / 0.15 * 1e-6, rel=1e-12)
     assert limit_si("icnirp-1998-public", "E", 150) == pytest.approx(250 / 0.15, rel=1e-12)
 
 
 def test_2010_public_formula_pieces():
-    # ICNIRP 2010 public table (SEEN, check-values.md §2), f in Hz: B 4e-2/f^2 (1-8 Hz), 5e-3/f (8-25 Hz),
+    # ICNIRP 2010 public table (SEEN, the row's provenance in models/data/reference_levels.json), f in Hz: B 4e-2/f^2 (1-8 Hz), 5e-3/f (8-25 Hz),
     # 2e-4 (25-400 Hz), 8e-2/f (400 Hz-3 kHz); E 5 kV/m to 50 Hz then 2.5e2/f kV/m.
     assert limit_si("icnirp-2010-public", "B", 2) == pytest.approx(4e-2 / 4, rel=1e-12)
     assert limit_si("icnirp-2010-public", "B", 10) == pytest.approx(5e-3 / 10, rel=1e-12)

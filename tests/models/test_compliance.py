@@ -3,7 +3,7 @@
 Field results here are synthetic FieldResult objects built from analytic shapes whose
 limit crossings are computed by hand (triangles, where linear interpolation is exact;
 a Lorentzian 1/(1 + (x/a)^2), crossing at a*sqrt(B0/L - 1)).  Published vectors: the
-Cyprus measurement report and the DERIVED harmonic sum of check-values.md §1 and §2.
+Cyprus measurement report and the harmonic sum derived from ICNIRP 2010's multiple-frequency rule.
 """
 
 from __future__ import annotations
@@ -55,7 +55,7 @@ def b_limit(value_ut, frequency_hz=50.0):
 @pytest.mark.parametrize(
     ("quantity", "value", "frequency_hz", "percent"),
     [
-        # Cyprus measurement report (check-values.md §1, SEEN):
+        # Cyprus measurement report (fosscy.eu emfmap measurement report, secondary source):
         # https://fosscy.eu/projects/emfmap/emf-nicosia/emf-high-voltage-power-lines-delphon-strt-geri-nicosia-03012017.php
         # columns: measured value | frequency | "ICNIRP General Public (%)", printed to 0.01 %.
         ("B", 1.52e-6, 51.0, 1.55),
@@ -74,7 +74,7 @@ def test_cyprus_report_percentages_icnirp_1998_public(quantity, value, frequency
 
 
 def test_harmonic_sum_derived_vector():
-    # check-values.md §2 (DERIVED): 50 µT at 50 Hz + 10 µT at 150 Hz, general public:
+    # derived from ICNIRP 2010's multiple-frequency rule: 50 µT at 50 Hz + 10 µT at 150 Hz, general public:
     # ICNIRP 2010: 50/200 + 10/200 = 0.30; ICNIRP 1998: 50/100 + 10/33.3 = 0.80.
     components = [(50.0, 50e-6), (150.0, 10e-6)]
     assert harmonic_exposure_index("icnirp-2010-public", "B", components) == pytest.approx(0.30, rel=1e-12)
@@ -134,7 +134,7 @@ def test_field_exactly_at_limit_passes():
 
 def test_maximum_versus_resultant():
     # Circular polarisation: resultant = sqrt(2) * maximum (emfs.info ellipse page, SEEN in
-    # check-values.md §6; resultant^2 = max^2 + min^2).
+    # polarisation-ellipse definitions, IEEE Std 644 terms (from memory); resultant^2 = max^2 + min^2).
     result = profile_result([0.0], b_t=100e-6, circular=True)
     (res,) = evaluate_compliance(result, [b_limit(100)])
     (mx,) = evaluate_compliance(result, [b_limit(100)], quantity_kind="maximum")

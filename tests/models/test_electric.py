@@ -13,7 +13,7 @@ Checks, each against something outside the engine:
 * at ground level the field of charges over a conducting plane is vertical (image method);
 * linearity in V, superposition of circuits, scaling E(a x) = E(x)/a at fixed voltage,
   far-field decay (dipole 1/r^2 for one conductor and its image, 1/r^3 for a balanced set);
-* equivalent bundle radius (check-values.md section 7.2, common practice) against the
+* equivalent bundle radius (Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory); common practice) against the
   explicit-subconductor charge simulation the engine uses.
 """
 

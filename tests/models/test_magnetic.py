@@ -10,7 +10,7 @@ Checks, each against something outside the engine:
   L = 1e6 m (end effect ~ r^2 / (2 L^2) < 2e-9 at r = 60 m);
 * linearity, superposition, scaling B(aI, a x) = B(I, x) (magpylib's test_scaling idea),
   far-field decay (1/r for a net current, 1/r^2 for a balanced set);
-* Deri complex depth p against check-values.md section 7.3 (DERIVED table, recomputed
+* Deri complex depth p against Deri et al., IEEE Trans. PAS-100(8):3686-3693, 1981 (from memory) (values derived from the paper's formula, recomputed
   here from the skin-depth form with scipy.constants), vanishing earth-return correction
   for very resistive soil and for a balanced set.
 """
@@ -234,7 +234,7 @@ def test_far_field_decay():
 
 @pytest.mark.parametrize(
     "f_hz, rho, p_re",
-    # check-values.md section 7.3, DERIVED table (2 decimals)
+    # Deri et al., IEEE Trans. PAS-100(8):3686-3693, 1981 (from memory): values derived from its formula (2 decimals)
     [(50.0, 10.0, 112.54), (50.0, 100.0, 355.88), (50.0, 1000.0, 1125.40),
      (60.0, 10.0, 102.73), (60.0, 100.0, 324.87), (60.0, 1000.0, 1027.34)],
     ids=["50Hz-10", "50Hz-100", "50Hz-1000", "60Hz-10", "60Hz-100", "60Hz-1000"],

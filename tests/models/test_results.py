@@ -1,6 +1,6 @@
 """Per-point field quantities (models.results): resultant, ellipse axes, axial ratio.
 
-Hand cases are worked out on paper from the definitions in check-values.md section 6
+Hand cases are worked out on paper from the definitions in polarisation-ellipse definitions, IEEE Std 644 terms (from memory)
 (resultant = root-sum-square of component rms values; maximum = rms along the major axis
 of the polarisation ellipse; B_R^2 = B_max^2 + B_min^2; circular field: B_R / B_max =
 sqrt(2), DERIVED there as 1.41421).  A brute-force check samples the time signal
@@ -47,7 +47,7 @@ def test_rotation_of_the_axes_leaves_the_ellipse_unchanged():
 
 
 def test_circular_resultant_to_maximum_ratio():
-    # check-values.md section 6: circular field, B_R / B_max = sqrt(2) (1.41421, DERIVED there)
+    # polarisation-ellipse definitions, IEEE Std 644 terms (from memory): circular field, B_R / B_max = sqrt(2) (1.41421, DERIVED there)
     f = np.array([[5e-6, 5e-6j]])
     assert resultant_rms(f)[0] / ellipse_axes(f)[0][0] == pytest.approx(1.41421, abs=5e-6)
 

@@ -4,7 +4,7 @@ Sources of the expected values:
 * phase-label schemes and sequences: common practice (L1/L2/L3, A/B/C, R/S/T, R/Y/B at
   0, -120, +120 deg in positive sequence);
 * subconductor positions: the convention written in the models.geometry.Bundle docstring;
-* equivalent bundle radius r_eq = (n r A^(n-1))^(1/n): check-values.md section 7.2
+* equivalent bundle radius r_eq = (n r A^(n-1))^(1/n): Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory)
   (formula from memory, Deno & Zaffanella 1982; the mm values are DERIVED there and
   recomputed here independently of the engine).
 """
@@ -110,7 +110,7 @@ def test_subconductor_positions_follow_the_bundle_convention(n, expected):
 
 @pytest.mark.parametrize(
     "n, r_mm, s_m, r_eq_mm",
-    # check-values.md section 7.2, DERIVED values (printed to 0.01 mm)
+    # Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory), derived values (printed to 0.01 mm)
     [(2, 14.3, 0.40, 75.63), (3, 14.3, 0.40, 131.77), (4, 14.3, 0.40, 189.67), (4, 14.31, 0.305, 154.80)],
     ids=["twin", "triple", "quad", "quad-305mm"],
 )

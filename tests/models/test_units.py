@@ -1,6 +1,6 @@
 """Physical constants and unit helpers (models.units) against scipy.constants (CODATA).
 
-SciPy >= 1.15 ships CODATA 2022 (check-values.md section 7.5: the installed SciPy 1.17.1
+SciPy >= 1.15 ships CODATA 2022 (CODATA 2022 through scipy.constants: the installed SciPy 1.17.1
 returns mu_0 = 1.25663706127e-06, epsilon_0 = 8.8541878188e-12).  models.units pins the
 values so that the engine does not depend on SciPy at run time.
 """
@@ -33,7 +33,7 @@ def test_constants_consistent_with_speed_of_light():
 
 
 def test_mu0_is_close_to_but_not_the_pre_2019_exact_value():
-    # check-values.md section 7.5: 4 pi 1e-7 differs from CODATA 2022 by ~1.3e-10 relative
+    # CODATA 2022 through scipy.constants: 4 pi 1e-7 differs from CODATA 2022 by ~1.3e-10 relative
     rel = units.MU0_H_PER_M / (4 * math.pi * 1e-7) - 1
     assert 1e-11 < abs(rel) < 1e-9
 

@@ -89,7 +89,7 @@ def test_report_content(client, demo):
     assert planning["passes"] is False and body["outcome"] == "fail"
     assert planning["distance_left_m"] > 0 and planning["distance_right_m"] > 0
     icnirp_e = next(e for e in body["compliance"] if e["level_id"] == "icnirp-2010-public" and e["quantity"] == "E")
-    assert icnirp_e["limit_kv_m"] == pytest.approx(5.0)  # ICNIRP 2010, 5 kV/m at 50 Hz (check-values.md, SEEN)
+    assert icnirp_e["limit_kv_m"] == pytest.approx(5.0)  # ICNIRP 2010, 5 kV/m at 50 Hz (ICNIRP 2010, Health Phys. 99(6):818-836, Table 4)
     assert icnirp_e["margin_kv_m"] == pytest.approx(5.0 - icnirp_e["max_kv_m"])
     text = " ".join(body["cautions"])
     for phrase in ("IEC 62110", "IEEE Std 644", "pacemaker", "regulator", "licensed engineer"):

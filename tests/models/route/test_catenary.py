@@ -2,7 +2,7 @@
 
 Independent references, named at each check:
 * engineering handbook formulas and the worked example quoted in
-  /work/shared/check-values.md 7.4 (parabolic sag wL^2/(8H) SEEN; exact catenary
+  a worked example at https://www.scienceaq.com/Article/Physics/4823.html (secondary source; parabolic sag wL^2/(8H); exact catenary
   values DERIVED there);
 * the catenary built directly from its definition z = C cosh((x - a)/C) + const with
   a chosen low point a, integrated/minimised numerically with scipy.
@@ -34,20 +34,20 @@ G = 9.80665  # standard gravity [m/s^2] (scipy.constants.g)
 
 
 def test_worked_example_parabolic_and_exact():
-    # check-values.md 7.4, SEEN (scienceaq.com): 1 kg/m, 10,000 kg tension, 500 m span
+    # worked example, https://www.scienceaq.com/Article/Physics/4823.html (secondary source): 1 kg/m, 10,000 kg tension, 500 m span
     # -> parabolic sag (1)(500^2)/(8)(10,000) = 3.125 m.  kg-force units cancel in C = H/w.
     assert parabolic_sag_m(500.0, 1.0 * G, 10_000.0 * G) == pytest.approx(3.125, rel=1e-15)
-    # Exact catenary for the same case, DERIVED in check-values.md 7.4: D = 3.12516 m, L_c = 500.05208 m.
+    # Exact catenary for the same case, derived from the exact catenary: D = 3.12516 m, L_c = 500.05208 m.
     c = 10_000.0
     assert level_span_sag_m(500.0, c) == pytest.approx(3.12516, abs=5e-6)
     assert conductor_length_m(500.0, 0.0, c) == pytest.approx(500.05208, abs=5e-6)
-    # Handbook series L + w^2 L^3 / (24 H^2) (check-values.md 7.4); the next term of the
+    # Handbook series L + w^2 L^3 / (24 H^2) (catenary of a uniform flexible cable, common practice (any statics text)); the next term of the
     # sinh series, L^5 / (1920 C^4) = 1.6e-6 m, bounds the difference.
     assert conductor_length_m(500.0, 0.0, c) == pytest.approx(500.0 + 500.0**3 / (24 * c**2), abs=2e-6)
 
 
 def test_si_example():
-    # check-values.md 7.4, DERIVED SI example: w = 15.897 N/m (1.621 kg/m), H = 25 kN, L = 350 m,
+    # an SI example derived from the exact catenary: w = 15.897 N/m (1.621 kg/m), H = 25 kN, L = 350 m,
     # C = 1572.67 m, parabolic 9.7367 m, catenary 9.7467 m.
     w, h, span = 1.621 * G, 25_000.0, 350.0
     s = CatenarySpan.from_tension(span, 0.0, h, w)
@@ -59,7 +59,7 @@ def test_si_example():
 
 
 def test_exact_formula_matches_definition():
-    # Handbook: y(x) = C (cosh(x/C) - 1) with the low point as origin (check-values.md 7.4);
+    # Handbook: y(x) = C (cosh(x/C) - 1) with the low point as origin (catenary of a uniform flexible cable, common practice (any statics text));
     # level-span sag D = C (cosh(L/2C) - 1) evaluated here with math.cosh directly.
     for span, c in [(100.0, 50.0), (300.0, 1200.0), (1000.0, 3000.0)]:
         assert level_span_sag_m(span, c) == pytest.approx(c * (math.cosh(span / (2 * c)) - 1), rel=1e-12)

@@ -7,7 +7,7 @@ Independent references, named at each check:
   (scipy.integrate.quad), for the convergence of B as segments are refined;
 * the 2-D cross-section engine (models.cross_section.evaluate_cross_section) for a
   long straight level span at mid-span;
-* check-values.md 7.2 (DERIVED) for the bundle equivalent radius.
+* Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory) (values derived from the formula) for the bundle equivalent radius.
 """
 
 from __future__ import annotations
@@ -122,7 +122,7 @@ def test_currents_and_voltages_follow_the_phase_labels():
 
 
 def test_for_electric_one_wire_per_bundle_with_equivalent_radius():
-    # check-values.md 7.2, DERIVED: n = 2, r = 14.3 mm, s = 0.40 m -> r_eq = 75.63 mm
+    # Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory), derived: n = 2, r = 14.3 mm, s = 0.40 m -> r_eq = 75.63 mm
     segs = discretise_route(_route(), for_electric=True)
     assert len(segs.wire_radius_m) == 4
     assert segs.wire_radius_m[0] == pytest.approx(0.07563, abs=5e-6)

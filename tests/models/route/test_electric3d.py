@@ -7,7 +7,7 @@ Each check names its independent reference:
   independent numpy evaluation of the textbook parallel/perpendicular components;
 * a long straight line against the 2-D image solution (Maxwell potential
   coefficients, CIGRE TB 21 / EPRI Reference Book ch. 8, from memory; formulas as in
-  /work/shared/check-values.md section 7.1), single wire and 3-phase with earth wire;
+  image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)), single wire and 3-phase with earth wire;
 * Gauss's law as a surface integral of eps0 E (enclosed charge, and zero);
 * the boundary conditions themselves: V = wire voltage at the matching points,
   V = 0 on the ground plane (image method), E vertical at ground;
@@ -77,7 +77,7 @@ def brentq_catenary(span_m, sag_m):
 
 
 def field_2d(q, ys, zs, obs_y, obs_z):
-    """2-D image solution (check-values 7.1): E = sum q/(2 pi eps0) [(r-rk)/|r-rk|^2 - (r-rk')/|r-rk'|^2]."""
+    """2-D image solution (image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)): E = sum q/(2 pi eps0) [(r-rk)/|r-rk|^2 - (r-rk')/|r-rk'|^2]."""
     ey = np.zeros(len(obs_y), complex)
     ez = np.zeros(len(obs_y), complex)
     for qk, yk, zk in zip(q, ys, zs):
@@ -236,7 +236,7 @@ def test_matching_matrix_equals_mean_of_point_coefficients():
 
 
 def test_single_long_wire_matches_2d_image_solution():
-    # Reference: q = 2 pi eps0 V / ln(2h/r) and the 2-D image field (check-values 7.1).
+    # Reference: q = 2 pi eps0 V / ln(2h/r) and the 2-D image field (image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)).
     h, r, v = 12.0, 0.015, 230e3
     seg = polyline_set(straight_wires([0.0], [h], 4000.0, 10.0), [v], [r])
     q = e3.line_charges(seg)
@@ -259,7 +259,7 @@ def test_single_long_wire_matches_2d_image_solution():
 
 
 def test_three_phase_line_with_earth_wire_matches_2d():
-    # Reference: the 2-D potential-coefficient solution (check-values 7.1) for a flat 400 kV line
+    # Reference: the 2-D potential-coefficient solution (image method over perfectly conducting ground, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982, ch. 8 (from memory)) for a flat 400 kV line
     # with one earth wire; 3-D line 6 km long with 20 m segments, fields at mid-span.
     ys = [-9.0, 0.0, 9.0, 0.0]
     zs = [15.0, 15.0, 15.0, 24.0]
