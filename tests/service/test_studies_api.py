@@ -165,3 +165,14 @@ def test_study_schemas_match_the_document(spec, name, schema):
     assert set(doc["required"]) == {k for k, f in fields.items() if f.required}
     assert "study" in spec["components"]["schemas"]["AssessmentRequest"]["properties"]
     assert "study" in spec["components"]["schemas"]["RouteAssessmentRequest"]["properties"]
+
+
+@pytest.mark.parametrize("study", [CLEARANCE, {"kind": "phase_arrangement", "rank_by": "b_edge"},
+                                   clearance(beyond_offset_m=None, quantity="B", height_m=1.5)])
+def test_normalised_input_with_a_study_loads_to_an_equal_request(client, study):
+    body = demo(study=study)
+    report = client.post("/v1/evaluate", json=body).get_json()
+    assert "beyond_offset_m" not in report["input"]["study"] or study.get("beyond_offset_m") is not None
+    again = load_assessment_request(report["input"], max_points=20_001, max_conductors=64)
+    assert again == load_assessment_request(body, max_points=20_001, max_conductors=64)
+    assert again.study is not None and again.study.kind == study["kind"]
