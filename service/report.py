@@ -29,6 +29,7 @@ from .route_report import ROUTE
 from .route_schemas import RouteAssessmentRequest, geometry_kind, load_route_request
 from .schemas import AssessmentRequest, load_assessment_request
 from .section_report import SECTION
+from .study_report import check_study, study_block
 from .tables import presentation, threshold_row
 
 CAUTIONS: tuple[str, ...] = (
@@ -45,7 +46,7 @@ CAUTIONS: tuple[str, ...] = (
 
 MEMBER_ORDER = ("kind", "title", "reference", "outcome", "engine_version", "catalogue_version", "frequency_hz",
                 "compliance_quantity", "input", "crs", "results", "zones", "maxima", "compliance", "segment_counts",
-                "assumptions", "cautions", "points", "right_of_way", "load_cases", "load_case_summary")
+                "assumptions", "cautions", "points", "right_of_way", "load_cases", "load_case_summary", "study")
 """Order of a report's members (each geometry has a subset)."""
 
 BASE_LABEL = "As requested"
@@ -257,7 +258,8 @@ def build_report(request: Request, *, max_points: int | None = None) -> dict[str
         request), the geometry's members (cross-section: ``points``; route: ``crs``,
         ``results``, ``zones``, ``segment_counts``), ``maxima``, ``compliance``,
         ``assumptions``, ``cautions``, ``right_of_way`` when the request gives one, and
-        ``load_cases`` with ``load_case_summary`` when it gives load cases.
+        ``load_cases`` with ``load_case_summary`` when it gives load cases, ``study``
+        when it gives a study (:mod:`service.study_report`).
 
     Raises
     ------
@@ -266,6 +268,7 @@ def build_report(request: Request, *, max_points: int | None = None) -> dict[str
     """
     view = view_for(request)
     view.check(request)
+    check_study(view.geometry, request)
     limits = thresholds(request)
     ev = view.evaluate(request, request.line, max_points=max_points)
     judgements = judge(ev, limits)
@@ -292,4 +295,6 @@ def build_report(request: Request, *, max_points: int | None = None) -> dict[str
     if request.load_cases:
         members["load_cases"], members["load_case_summary"] = load_case_blocks(
             view, request, limits, (ev, judgements, compliance), max_points)
+    if request.study is not None:
+        members["study"] = study_block(view.geometry, request, limits, ev)
     return {k: members[k] for k in MEMBER_ORDER if k in members}

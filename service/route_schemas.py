@@ -25,6 +25,7 @@ from shapely.geometry import LineString
 
 from models.errors import EngineInputError
 from models.load_cases import LoadCase
+from models.studies import ClearanceStudy, PhaseArrangementStudy
 from models.route.crs import is_geographic
 from models.route.sets import (
     CustomZoneLimit,
@@ -350,6 +351,7 @@ class RouteAssessmentRequest:
     custom_limits: tuple[CustomLimit, ...] = ()
     soil_resistivity_ohm_m: float | None = None
     load_cases: tuple[LoadCase, ...] | None = None
+    study: ClearanceStudy | PhaseArrangementStudy | None = None
     point_counts: dict = field(default_factory=dict, compare=False)
     """Estimated points per evaluation set (from the schema's size checks; not part of the request)."""
 
@@ -481,7 +483,7 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             route=data["route"]["route"], crs=data["route"]["crs"], evaluation=sets,
             reference_levels=tuple(data["reference_levels"]), custom_limits=tuple(data["custom_limits"]),
             soil_resistivity_ohm_m=data.get("soil_resistivity_ohm_m"),
-            load_cases=tuple(data["load_cases"]) if "load_cases" in data else None,
+            load_cases=tuple(data["load_cases"]) if "load_cases" in data else None, study=data.get("study"),
             point_counts=dict(getattr(self, "point_counts", {})))
 
 
@@ -578,4 +580,6 @@ def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
         body["zones"] = {"thresholds": [t if isinstance(t, str) else to_plain(t) for t in ev.zones.thresholds]}
     if req.load_cases:
         body["load_cases"] = to_plain(list(req.load_cases))
+    if req.study is not None:
+        body["study"] = to_plain(req.study)
     return body

@@ -21,6 +21,7 @@ from marshmallow import Schema, ValidationError, fields, post_load, validate, va
 
 from models.catalogue import UNIT_TO_SI
 from models.load_cases import LoadCase
+from models.studies import RANK_BY, STUDY_KINDS, ClearanceStudy, PhaseArrangementStudy
 
 POSITIVE = validate.Range(min=0, min_inclusive=False, error="Must be greater than 0.")
 NON_NEGATIVE = validate.Range(min=0, error="Must be greater than or equal to 0.")
@@ -137,6 +138,55 @@ def load_cases_field() -> fields.List:
     return fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
 
 
+# --------------------------------------------------------------------------- studies
+
+
+class ClearanceStudySchema(Schema):
+    kind = fields.String(required=True, validate=validate.Equal("clearance"))
+    threshold = fields.String(required=True, validate=ID_TEXT)
+    quantity = fields.String(validate=validate.OneOf(["E", "B"]))
+    beyond_offset_m = FiniteFloat(allow_none=True, validate=NON_NEGATIVE)
+    height_m = FiniteFloat(validate=NON_NEGATIVE)
+    min_clearance_m = FiniteFloat(required=True, validate=POSITIVE)
+    max_clearance_m = FiniteFloat(required=True, validate=POSITIVE)
+    tolerance_m = FiniteFloat(load_default=0.01, validate=validate.Range(
+        min=0, max=1, min_inclusive=False, error="Must be greater than 0 and at most 1 m."))
+
+    @validates_schema
+    def ordered(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if "min_clearance_m" in data and "max_clearance_m" in data and \
+                not data["max_clearance_m"] > data["min_clearance_m"]:
+            raise ValidationError("Must be greater than min_clearance_m.", field_name="max_clearance_m")
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> ClearanceStudy:
+        return ClearanceStudy(**data)
+
+
+class PhaseArrangementStudySchema(Schema):
+    kind = fields.String(required=True, validate=validate.Equal("phase_arrangement"))
+    rank_by = fields.String(load_default="b_max", validate=validate.OneOf(RANK_BY))
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> PhaseArrangementStudy:
+        return PhaseArrangementStudy(**data)
+
+
+STUDY_SCHEMAS = {"clearance": ClearanceStudySchema, "phase_arrangement": PhaseArrangementStudySchema}
+
+
+class StudyField(fields.Field):
+    """The ``study`` member: an object whose ``kind`` chooses its schema (:data:`STUDY_SCHEMAS`)."""
+
+    def _deserialize(self, value: Any, attr: str | None, data: Mapping[str, Any] | None, **kwargs: Any) -> Any:
+        if not isinstance(value, dict):
+            raise ValidationError("Must be an object with a kind.")
+        kind = value.get("kind")
+        if kind not in STUDY_SCHEMAS:
+            raise ValidationError({"kind": [f"Must be one of: {', '.join(STUDY_KINDS)}."]})
+        return STUDY_SCHEMAS[kind]().load(value)
+
+
 # --------------------------------------------------------------------------- limits and the base request
 
 
@@ -180,6 +230,7 @@ class AssessmentBaseSchema(Schema):
     custom_limits = fields.List(fields.Nested(CustomLimitSchema), load_default=list,
                                 validate=validate.Length(max=32))
     load_cases = load_cases_field()
+    study = StudyField()
 
     def __init__(self, *, max_points: int = 20_001, max_conductors: int = 64, **kwargs: Any):
         super().__init__(**kwargs)
@@ -193,6 +244,12 @@ class AssessmentBaseSchema(Schema):
                                   field_name="reference_levels")
         check_unique([c.id for c in data["custom_limits"]], lambda i: ("custom_limits", i, "id"), "limit id",
                      taken=data["reference_levels"])
+        study = data.get("study")
+        if isinstance(study, ClearanceStudy):
+            ids = list(data["reference_levels"]) + [c.id for c in data["custom_limits"]]
+            if study.threshold not in ids:
+                raise ValidationError(nested_error(("study", "threshold"), "Must be one of the request's reference "
+                                                   f"levels or custom limit ids ({', '.join(ids)})."))
 
     def check_conductor_count(self, circuits: Iterable[Any], earth_wires: Iterable[Any], member: str) -> None:
         """Refuse more conductors and earth wires than ``max_conductors`` (422 at ``member``)."""

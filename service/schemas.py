@@ -19,6 +19,7 @@ from marshmallow import Schema, ValidationError, fields, post_load, validate, va
 
 from models.geometry import Bundle, Circuit, Conductor, CrossSection, CurrentPhasor, EarthWire, VoltagePhasor
 from models.load_cases import LoadCase
+from models.studies import ClearanceStudy, PhaseArrangementStudy
 from models.section_sets import (
     SectionPoint,
     SectionProfile,
@@ -189,6 +190,8 @@ class AssessmentRequest:
     soil_resistivity_ohm_m: float | None = None
     right_of_way: SectionRightOfWay | None = None
     load_cases: tuple[LoadCase, ...] | None = None
+    study: ClearanceStudy | PhaseArrangementStudy | None = None
+    """Last, so that requests without a study keep their normalised ``input`` unchanged."""
 
     @property
     def line(self) -> CrossSection:
