@@ -141,49 +141,13 @@ _COMPILED: tuple | None = None
 
 
 def _kernels() -> tuple:
-    """(row writer, restyle pass), compiled by numba on first use (cached on disk)."""
+    """(row writer, restyle pass), compiled by numba on first use (cached on disk).
+
+    Both copy a number's bytes and then restyle them in place (``restyle_in_place``).
+    """
     global _COMPILED
     if _COMPILED is None:
         from numba import njit
-
-        @njit(cache=True, nogil=True, inline="always")
-        def copy_number(src, i, j, out, w):  # pragma: no cover - compiled
-            # orjson number src[i:j] -> Python repr style into out[w:]
-            b0 = i + 1 if src[i] == 45 else i
-            epos = -1
-            for t in range(b0, j):
-                if src[t] == 101:
-                    epos = t
-                    break
-            if epos >= 0 and j - epos == 3:  # "e", sign, one digit
-                for t in range(i, epos + 2):
-                    out[w] = src[t]
-                    w += 1
-                out[w] = 48
-                out[w + 1] = src[j - 1]
-                return w + 2
-            if (epos < 0 and j - b0 > 6 and src[b0] == 48 and src[b0 + 1] == 46 and src[b0 + 2] == 48
-                    and src[b0 + 3] == 48 and src[b0 + 4] == 48 and src[b0 + 5] == 48 and src[b0 + 6] != 48):
-                if b0 > i:
-                    out[w] = 45
-                    w += 1
-                out[w] = src[b0 + 6]
-                w += 1
-                if j > b0 + 7:
-                    out[w] = 46
-                    w += 1
-                    for t in range(b0 + 7, j):
-                        out[w] = src[t]
-                        w += 1
-                out[w] = 101
-                out[w + 1] = 45
-                out[w + 2] = 48
-                out[w + 3] = 53
-                return w + 4
-            for t in range(i, j):
-                out[w] = src[t]
-                w += 1
-            return w
 
         @njit(cache=True, nogil=True, inline="always")
         def restyle_in_place(out, i, j, epos):  # pragma: no cover - compiled
@@ -267,12 +231,16 @@ def _kernels() -> tuple:
                     i += 1
                     continue
                 if c == 45 or 48 <= c <= 57:
-                    j = i + 1
-                    while j < n and (48 <= src[j] <= 57 or src[j] == 46 or src[j] == 101 or src[j] == 43
-                                     or src[j] == 45):
-                        j += 1
-                    w = copy_number(src, i, j, out, w)
-                    i = j
+                    w0 = w
+                    epos = -1
+                    while i < n and (48 <= src[i] <= 57 or src[i] == 46 or src[i] == 101 or src[i] == 43
+                                     or src[i] == 45):
+                        if src[i] == 101:
+                            epos = w
+                        out[w] = src[i]
+                        w += 1
+                        i += 1
+                    w = restyle_in_place(out, w0, w, epos)
                     continue
                 out[w] = c
                 w += 1

@@ -107,7 +107,7 @@ _CACHE = _RenderCache()
 
 
 def _finish(body: str | bytes, mimetype: str, record: storage.AssessmentRecord, fmt: str, *,
-            filename: str | None = None, vary: bool = True) -> Response:
+            filename: str | None = None, vary: bool = True, disposition: str = "inline") -> Response:
     response = Response(body, mimetype=mimetype)
     response.set_etag(f"{record.digest[:32]}-{fmt}-{REPORT_RENDERER_VERSION}")
     response.headers["Cache-Control"] = "private, max-age=0, must-revalidate"
@@ -115,7 +115,7 @@ def _finish(body: str | bytes, mimetype: str, record: storage.AssessmentRecord, 
     if vary:
         response.vary.add("Accept")
     if filename:
-        response.headers["Content-Disposition"] = f'inline; filename="{filename}"'
+        response.headers["Content-Disposition"] = f'{disposition}; filename="{filename}"'
     return response.make_conditional(request)
 
 
@@ -171,10 +171,8 @@ def get_geopackage(assessment_id: uuid.UUID) -> Response:
         body = export_geopackage.render_geopackage(record.report())
     except reports.NotARouteReport as exc:
         raise _not_a_route(assessment_id, exc) from None
-    response = _finish(body, export_geopackage.GEOPACKAGE_MIME, record, "gpkg",
-                       filename=f"assessment-{assessment_id}.gpkg", vary=False)
-    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.gpkg"'
-    return response
+    return _finish(body, export_geopackage.GEOPACKAGE_MIME, record, "gpkg",
+                   filename=f"assessment-{assessment_id}.gpkg", vary=False, disposition="attachment")
 
 
 @bp.get("/v1/assessments/<uuid:assessment_id>/geotiff")
@@ -186,10 +184,8 @@ def get_geotiff(assessment_id: uuid.UUID) -> Response:
     except export_geotiff.NoGrid as exc:
         raise ProblemError(404, f"Assessment {assessment_id}: {exc}", type_=NO_GEOMETRY,
                            title="No field grid") from None
-    response = _finish(body, export_geotiff.GEOTIFF_MIME, record, "geotiff",
-                       filename=f"assessment-{assessment_id}.tif", vary=False)
-    response.headers["Content-Disposition"] = f'attachment; filename="assessment-{assessment_id}.tif"'
-    return response
+    return _finish(body, export_geotiff.GEOTIFF_MIME, record, "geotiff",
+                   filename=f"assessment-{assessment_id}.tif", vary=False, disposition="attachment")
 
 
 def _recomputation(record: storage.AssessmentRecord, stored: dict[str, Any]) -> dict[str, Any]:

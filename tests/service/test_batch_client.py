@@ -19,14 +19,10 @@ from werkzeug.serving import make_server
 
 from service import batch_client, create_app
 
-EXAMPLES = Path(__file__).resolve().parents[2] / "service" / "examples"
-
+from .test_batches import demo as batch_demo
 
 def demo() -> dict:
-    body = json.loads((EXAMPLES / "demo_cross_section.json").read_text(encoding="utf-8"))
-    body.pop("load_cases")
-    body["profile"] = {"from_m": -40.0, "to_m": 40.0, "step_m": 2.0, "height_m": 1.0}
-    return body
+    return batch_demo(step_m=2.0)
 
 
 class FlakyGateway:

@@ -6,7 +6,6 @@ line (``service/examples``).
 
 from __future__ import annotations
 
-import copy
 import csv
 import io
 import json
@@ -21,10 +20,11 @@ from service import batch_store, batches, create_app, storage
 EXAMPLES = Path(__file__).resolve().parents[2] / "service" / "examples"
 
 
-def demo() -> dict:
+def demo(step_m: float = 4.0) -> dict:
+    """The demo line without its load cases on a short, coarse lateral profile (fast to assess)."""
     body = json.loads((EXAMPLES / "demo_cross_section.json").read_text(encoding="utf-8"))
     body.pop("load_cases")
-    body["profile"] = {"from_m": -40.0, "to_m": 40.0, "step_m": 4.0, "height_m": 1.0}
+    body["profile"] = {"from_m": -40.0, "to_m": 40.0, "step_m": step_m, "height_m": 1.0}
     return body
 
 
