@@ -63,13 +63,19 @@ def _layer_table(features: Sequence[Mapping[str, Any]], geometry_type: str):
     return names, columns, shapely.to_wkb(np.array(geoms, dtype=object))
 
 
-def _stamp(path: str, report: Mapping[str, Any]) -> None:
-    """Set ``gpkg_contents.last_change`` (GDAL writes the clock) to the report's ``created_at``,
-    so that one stored record always gives the same bytes (ETag = record digest)."""
+def _stamp(path: str, report: Mapping[str, Any]) -> str:
+    """Set ``gpkg_contents.last_change`` (GDAL writes the clock) to the report's ``created_at`` and
+    rewrite the file with ``VACUUM INTO``, so that one stored record always gives the same bytes
+    (ETag = record digest): the file header's change counter otherwise counts GDAL's commits,
+    whose number varies from run to run.  Returns the path of the rewritten file."""
     created = str(report.get("created_at") or "1970-01-01T00:00:00.000Z")
     stamp = created[:23].rstrip("Z") + "Z" if "." in created else created
-    with closing(sqlite3.connect(path)) as db, db:
-        db.execute("UPDATE gpkg_contents SET last_change = ?", (stamp,))
+    final = path + ".final"
+    with closing(sqlite3.connect(path)) as db:
+        with db:
+            db.execute("UPDATE gpkg_contents SET last_change = ?", (stamp,))
+        db.execute("VACUUM INTO ?", (final,))
+    return final
 
 
 def render_geopackage(report: Mapping[str, Any]) -> bytes:
@@ -97,6 +103,5 @@ def render_geopackage(report: Mapping[str, Any]) -> bytes:
                               geometry_type=geometry_type, crs=crs, append=written > 0,
                               layer_options={"FID": "fid"})
             written += 1
-        _stamp(path, report)
-        with open(path, "rb") as fh:
+        with open(_stamp(path, report), "rb") as fh:
             return fh.read()

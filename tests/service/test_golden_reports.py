@@ -3,8 +3,11 @@
 The golden files (``tests/service/golden``) were written by the service before the
 evaluation model was unified (``python -m tests.service.golden.make``).  These tests
 compare today's answers with them: same members in the same order, same strings, and
-numbers equal to 1e-12 relative (the engine's own floating-point noise is far below
-that; a changed formula or a changed selection of points is far above it).  The HTML is
+numbers equal to 1e-9 relative.  Floating-point noise between machines and library builds
+(numba/LLVM vectorisation, BLAS) was measured at up to 5e-11 relative, in the quantities
+that come from near-cancellations: contoured zone widths, the phase of a near-zero field
+component, axial ratios; a changed formula or a changed selection of points moves values
+by far more than 1e-9.  The HTML is
 compared as text outside its figures, so every printed number counts.  A database of
 records stored by that earlier service must still verify (``POST /verify`` -> match)
 and its chain must check.
@@ -26,7 +29,7 @@ from service import create_app
 from .golden.render import RECORD_SCENARIOS, rendered
 from .golden.scenarios import HERE, scenarios
 
-RTOL = 1e-12
+RTOL = 1e-9
 ATOL = 1e-15
 
 
