@@ -23,8 +23,8 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     :raise ValueError: on a setting the service cannot run with.
     :raise service.schema_migrations.SchemaStateError: on a database schema it cannot use.
     """
+    from . import access, errors, logs, metrics, storage
     from . import config as settings
-    from . import errors, logs, metrics, storage
 
     app = Flask(__name__, instance_relative_config=True)
     settings.load(app.config, config)
@@ -34,15 +34,26 @@ def create_app(config: Mapping[str, Any] | None = None) -> Flask:
     errors.init_app(app)
     metrics.init_app(app)
     storage.init_app(app)
+    access.init_app(app)  # API keys: after logs (request id) and storage, before every view
     Compress(app)  # gzip on Accept-Encoding (COMPRESS_* settings), Vary: Accept-Encoding
-    if app.config["WARM_UP_ENGINE"]:
+    serving = _serving()
+    if app.config["WARM_UP_ENGINE"] and serving:
         _warm_up_engine()
     _register_blueprints(app)
-    if app.config["BATCH_WORKER"] and not app.testing:
+    if app.config["BATCH_WORKER"] and not app.testing and serving:
         from . import batches
 
         batches.resume(app)
     return app
+
+
+def _serving() -> bool:
+    """False when the app was built for a ``flask`` command other than ``run`` (``keys``, ``routes``):
+    such a process answers no requests, so it neither compiles the kernels nor starts the batch processor."""
+    import click
+
+    ctx = click.get_current_context(silent=True)
+    return ctx is None or ctx.info_name in (None, "run")
 
 
 def _warm_up_engine() -> None:

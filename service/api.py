@@ -14,13 +14,14 @@ from pathlib import Path
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, url_for
-from sqlalchemy.exc import SQLAlchemyError
+from sqlalchemy.exc import IntegrityError, SQLAlchemyError
 from werkzeug.exceptions import NotFound
 
 from models import catalogue
 from models.errors import CatalogueError
 
-from . import storage
+from . import idempotency, storage
+from .access import current_tenant
 from .errors import ProblemError
 from .json_text import dumps
 from .metrics import ASSESSMENTS_STORED, REPORT_SECONDS
@@ -77,16 +78,38 @@ def _summary(record: storage.AssessmentRecord) -> dict[str, Any]:
 # --------------------------------------------------------------------------- assessments
 
 
+def _created(record: storage.AssessmentRecord, *, replayed: bool = False) -> tuple[Response, int, dict[str, str]]:
+    headers = {"Location": url_for("api.get_assessment", assessment_id=record.id)}
+    if replayed:
+        headers[idempotency.REPLAYED_HEADER] = "true"
+    return _json_text(record.served_json()), 201, headers
+
+
 @bp.post("/v1/assessments")
 def create_assessment() -> tuple[Response, int, dict[str, str]]:
-    """Compute an assessment and store it."""
-    report = _timed_report(json_body())
+    """Compute an assessment and store it (201 only once the record is committed).
+
+    With an ``Idempotency-Key`` a retry returns the original record (:mod:`service.idempotency`).
+    """
+    body = json_body()
+    key, tenant = idempotency.requested_key(), current_tenant()
+    body_sha256 = idempotency.fingerprint(body) if key else ""
+    if key and (earlier := idempotency.earlier_record(tenant, key, body_sha256)) is not None:
+        return _created(earlier, replayed=True)
+    report = _timed_report(body)
     session = storage.get_session()
-    with session.begin():
-        record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    try:
+        with session.begin():
+            record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report, tenant=tenant)
+            if key:
+                storage.add_idempotency_key(session, tenant, key, body_sha256, record.id)
+    except IntegrityError:
+        # a twin submission with the same key committed first: answer with its record
+        if not key or (earlier := idempotency.earlier_record(tenant, key, body_sha256)) is None:
+            raise
+        return _created(earlier, replayed=True)
     ASSESSMENTS_STORED.labels(report["kind"]).inc()
-    location = url_for("api.get_assessment", assessment_id=record.id)
-    return _json_text(record.served_json()), 201, {"Location": location}
+    return _created(record)
 
 
 @bp.get("/v1/assessments/<uuid:assessment_id>")

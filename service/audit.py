@@ -121,7 +121,7 @@ def compare_reports(stored: Any, recomputed: Any, *, rtol: float = RTOL, atol: f
 def record_problems(record: AssessmentRecord) -> list[str]:
     """Reasons why ``record`` is not as stored by the service (empty list = intact)."""
     problems = []
-    if record_digest(record.request_json, record.report_json, record.prev_digest) != record.digest:
+    if record_digest(record.request_json, record.report_json, record.prev_digest, record.tenant) != record.digest:
         problems.append("the stored digest does not match the stored request, report and prev_digest "
                         "(the row was altered)")
     try:
@@ -144,7 +144,7 @@ def record_problems(record: AssessmentRecord) -> list[str]:
 
 def check_record(record: AssessmentRecord) -> dict[str, Any]:
     """Tamper evidence for one record (see module docstring)."""
-    recomputed = record_digest(record.request_json, record.report_json, record.prev_digest)
+    recomputed = record_digest(record.request_json, record.report_json, record.prev_digest, record.tenant)
     problems = record_problems(record)
     return {
         "sequence": record.sequence,

@@ -35,11 +35,14 @@ class Claim:
     position: int
     request_json: str
     token: str
+    tenant: str | None = None
 
 
-def create_batch(session: Session, title: str, items: list[tuple[str, Any]]) -> BatchRecord:
-    """Store a batch and its items (``(name, request body)`` each, all ``pending``)."""
-    batch = BatchRecord(id=uuid.uuid4(), created_at=datetime.now(timezone.utc), title=title, item_count=len(items))
+def create_batch(session: Session, title: str, items: list[tuple[str, Any]], *,
+                 tenant: str | None = None) -> BatchRecord:
+    """Store a batch of organisation ``tenant`` and its items (``(name, request body)`` each, all ``pending``)."""
+    batch = BatchRecord(id=uuid.uuid4(), created_at=datetime.now(timezone.utc), title=title, item_count=len(items),
+                        tenant=tenant)
     session.add(batch)
     session.flush()
     session.add_all(BatchItem(batch_id=batch.id, position=i, name=name, status="pending",
@@ -79,9 +82,10 @@ def claim_next(session: Session, *, lease_s: float, now: datetime | None = None)
         candidate = candidate.with_for_update(skip_locked=True)
     session.execute(update(BatchItem).where(tuple_(BatchItem.batch_id, BatchItem.position).in_(candidate))
                     .values(status="running", claim=token, claimed_at=now).execution_options(synchronize_session=False))
-    row = session.execute(select(BatchItem.batch_id, BatchItem.position, BatchItem.request_json)
+    row = session.execute(select(BatchItem.batch_id, BatchItem.position, BatchItem.request_json, BatchRecord.tenant)
+                          .join(BatchRecord, BatchRecord.id == BatchItem.batch_id)
                           .where(BatchItem.claim == token)).first()
-    return None if row is None else Claim(row.batch_id, row.position, row.request_json, token)
+    return None if row is None else Claim(row.batch_id, row.position, row.request_json, token, row.tenant)
 
 
 def finish_item(session: Session, claim: Claim, *, report: dict[str, Any] | None = None,
@@ -92,7 +96,8 @@ def finish_item(session: Session, claim: Claim, *, report: dict[str, Any] | None
     Returns False when the claim is no longer this processor's (the item was taken over
     or already ended: nothing is written); else the stored record (or None for a problem).
     The claim check is the transaction's first statement, a write, so it also takes the
-    write lock before the assessment is appended to the chain.
+    write lock before the assessment is appended to the chain.  The assessment belongs to
+    the batch's organisation (``claim.tenant``).
     """
     now = datetime.now(timezone.utc)
     values: dict[str, Any] = {"status": "error" if report is None else "done", "finished_at": now, "claim": None}
@@ -107,7 +112,7 @@ def finish_item(session: Session, claim: Claim, *, report: dict[str, Any] | None
         return False
     if report is None:
         return None
-    record = insert_assessment(session, canonical_request, report)
+    record = insert_assessment(session, canonical_request, report, tenant=claim.tenant)
     session.execute(update(BatchItem).where(BatchItem.batch_id == claim.batch_id,
                                             BatchItem.position == claim.position)
                     .values(assessment_id=record.id))

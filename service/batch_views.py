@@ -19,6 +19,7 @@ from marshmallow import Schema, ValidationError, fields, validate, validates_sch
 from werkzeug.exceptions import NotFound
 
 from . import batch_store, batches, storage
+from .access import current_tenant
 from .inputs import json_body
 from .schema_fields import TEXT, check_unique
 
@@ -88,7 +89,8 @@ def create_batch() -> tuple[Response, int, dict[str, str]]:
     data = BatchSchema(max_items=current_app.config["MAX_BATCH_ITEMS"]).load(json_body())
     session = storage.get_session()
     with session.begin():
-        batch = batch_store.create_batch(session, data["title"], [(i["name"], i["request"]) for i in data["items"]])
+        batch = batch_store.create_batch(session, data["title"], [(i["name"], i["request"]) for i in data["items"]],
+                                         tenant=current_tenant())
         document = _document(batch, batch_store.batch_items(session, batch.id))
     batches.wake(current_app._get_current_object())
     return jsonify(document), 202, {"Location": url_for("batches.get_batch", batch_id=batch.id)}

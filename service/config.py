@@ -23,6 +23,9 @@ if TYPE_CHECKING:
 ENV_PREFIX = "EMF"
 
 DEFAULTS: dict[str, Any] = {
+    # Access control (service.access): every request but the open ones needs an API key of an
+    # organisation; false = single-user local use, no keys, nothing scoped.
+    "AUTH_REQUIRED": True,
     # SQLAlchemy URL; None means a SQLite file ``emf-assess.sqlite3`` in the
     # Flask instance folder (created on demand).
     "DATABASE_URL": None,
@@ -37,6 +40,13 @@ DEFAULTS: dict[str, Any] = {
     "MAX_REPORT_BYTES": 256 * 1024 * 1024,
     # Largest number of conductor positions (all circuits) plus earth wires.
     "MAX_CONDUCTORS": 64,
+    # Largest grid of a route request (nodes), within MAX_ROUTE_POINTS.
+    "MAX_GRID_POINTS": 100_000,
+    # Route work bounds, checked after discretisation and before any field is computed: straight
+    # segments per discretisation (the E charge solve holds an n x n matrix: 5,000 -> 200 MB, a few
+    # seconds), and observation points x segments (kernel evaluations).
+    "MAX_SEGMENTS": 5_000,
+    "MAX_SEGMENT_POINT_PAIRS": 400_000_000,
     # Compliance batches (POST /v1/batches): most items per batch; each worker's background
     # processor (off with BATCH_WORKER false), its idle poll [s] and the lease after which an
     # item claimed by a worker that died is taken over [s].
@@ -70,11 +80,15 @@ DEFAULTS: dict[str, Any] = {
 
 # Documented in README.md "Configuration"; the table there lists these names.
 ENVIRONMENT_VARIABLES: dict[str, str] = {
+    "EMF_AUTH_REQUIRED": "require an API key on every request but the open ones (true/false)",
     "EMF_DATABASE_URL": "SQLAlchemy database URL",
     "EMF_MAX_CONTENT_LENGTH": "largest request body [bytes]",
     "EMF_MAX_POINTS": "largest number of evaluation points per request",
     "EMF_MAX_ROUTE_POINTS": "largest number of observation points of a route request",
     "EMF_MAX_CONDUCTORS": "largest number of conductor positions plus earth wires",
+    "EMF_MAX_GRID_POINTS": "largest number of grid nodes of a route request",
+    "EMF_MAX_SEGMENTS": "largest number of straight segments of a route's discretisation (B or E)",
+    "EMF_MAX_SEGMENT_POINT_PAIRS": "largest number of observation points x segments of a route request",
     "EMF_MAX_REPORT_BYTES": "largest report a request may produce [bytes] (estimated before computing)",
     "EMF_MAX_BATCH_ITEMS": "most items of one batch",
     "EMF_BATCH_WORKER": "process batch items in a background thread of each worker (true/false)",
@@ -119,9 +133,11 @@ def check(config: Mapping[str, Any]) -> None:
         value = config.get(key)
         if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
             raise ValueError(f"Setting {key} must be a number > 0; instead received {value!r}.")
-    if not isinstance(config.get("BATCH_WORKER"), bool):
-        raise ValueError(f"Setting BATCH_WORKER must be true or false; instead received {config.get('BATCH_WORKER')!r}.")
-    for key in ("MAX_BATCH_ITEMS", "MAX_CONTENT_LENGTH", "MAX_REPORT_BYTES", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
+    for key in ("BATCH_WORKER", "AUTH_REQUIRED", "LOG_REQUESTS", "MIGRATE_ON_START"):
+        if not isinstance(config.get(key), bool):
+            raise ValueError(f"Setting {key} must be true or false; instead received {config.get(key)!r}.")
+    for key in ("MAX_BATCH_ITEMS", "MAX_CONTENT_LENGTH", "MAX_REPORT_BYTES", "MAX_POINTS", "MAX_ROUTE_POINTS", "MAX_CONDUCTORS", "MAX_GRID_POINTS", "MAX_SEGMENTS",
+                "MAX_SEGMENT_POINT_PAIRS", "PAGE_SIZE_DEFAULT", "PAGE_SIZE_MAX"):
         value = config.get(key)
         if not isinstance(value, int) or isinstance(value, bool) or value < 1:
             raise ValueError(f"Setting {key} must be a positive integer; instead received {value!r}.")
@@ -132,11 +148,6 @@ def check(config: Mapping[str, Any]) -> None:
         raise ValueError("Setting PAGE_SIZE_DEFAULT must not exceed PAGE_SIZE_MAX.")
     if config.get("LOG_FORMAT") not in ("json", "text"):
         raise ValueError(f"Setting LOG_FORMAT must be 'json' or 'text'; instead received {config.get('LOG_FORMAT')!r}.")
-    if not isinstance(config.get("LOG_REQUESTS"), bool):
-        raise ValueError(f"Setting LOG_REQUESTS must be true or false; instead received {config.get('LOG_REQUESTS')!r}.")
-    if not isinstance(config.get("MIGRATE_ON_START"), bool):
-        raise ValueError("Setting MIGRATE_ON_START must be true or false; "
-                         f"instead received {config.get('MIGRATE_ON_START')!r}.")
     if "CREATE_TABLES" in config and config["CREATE_TABLES"] != config["MIGRATE_ON_START"]:
         raise ValueError("Setting CREATE_TABLES was replaced by MIGRATE_ON_START (schema migrations); "
                          f"set EMF_MIGRATE_ON_START instead of EMF_CREATE_TABLES={config['CREATE_TABLES']!r}.")

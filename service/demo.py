@@ -6,6 +6,10 @@ is busy), waits for ``/healthz``, POSTs ``service/examples/demo_cross_section.js
 (a fictitious 400 kV double-circuit line), prints the assessment id and the report
 URL, then serves until Ctrl-C.  The database is ``EMF_DATABASE_URL`` or, by default,
 the SQLite file in ``instance/``.
+
+Access control is on (unless ``EMF_AUTH_REQUIRED=false``): the demo creates a key of
+organisation ``demo`` (role ``submit``), prints it once, and uses it.  A browser sends
+no key, so the HTML report is also saved as ``instance/demo-report.html``.
 """
 
 from __future__ import annotations
@@ -66,9 +70,30 @@ def wait_healthy(base: str, server: subprocess.Popen, timeout_s: float = 120.0) 
     raise SystemExit(f"The service did not answer {base}/healthz within {timeout_s:.0f} s.")
 
 
-def submit(base: str) -> dict:
+def auth_required() -> bool:
+    """As the service will read ``EMF_AUTH_REQUIRED`` (JSON: ``false`` turns access control off)."""
+    return os.environ.get("EMF_AUTH_REQUIRED", "true").strip().lower() not in ("false", "0")
+
+
+def demo_key() -> str:
+    """A new key of organisation ``demo`` with role ``submit``, created on the service's database."""
+    from service import access, create_app, storage
+
+    app = create_app({"WARM_UP_ENGINE": False, "BATCH_WORKER": False, "LOG_LEVEL": "WARNING"})
+    try:
+        with storage.storage_of(app).sessionmaker() as session, session.begin():
+            return access.create_key(session, tenant="demo", role="submit", label="quick-start demo key").token
+    finally:
+        storage.storage_of(app).engine.dispose()
+
+
+def _headers(key: str | None, **more: str) -> dict[str, str]:
+    return {**more, **({"Authorization": f"Bearer {key}"} if key else {})}
+
+
+def submit(base: str, key: str | None = None) -> dict:
     request = urllib.request.Request(base + "/v1/assessments", data=SCENARIO.read_bytes(), method="POST",
-                                     headers={"Content-Type": "application/json"})
+                                     headers=_headers(key, **{"Content-Type": "application/json"}))
     try:
         with urllib.request.urlopen(request, timeout=120) as resp:
             return json.loads(resp.read())
@@ -76,17 +101,19 @@ def submit(base: str) -> dict:
         raise SystemExit(f"The demo scenario was refused ({exc.code}): {exc.read().decode(errors='replace')}")
 
 
-def report_url(base: str, assessment_id: str) -> str:
-    """The human-readable report if the service offers one, else the JSON record."""
+def save_report(base: str, assessment_id: str, key: str | None) -> Path | None:
+    """Save the printable HTML report to ``instance/demo-report.html``; None if it could not be fetched."""
     html = f"{base}/v1/assessments/{assessment_id}/report?format=html"  # HTML whatever the client sends
     try:
-        req = urllib.request.Request(html, headers={"Accept": "text/html"})
+        req = urllib.request.Request(html, headers=_headers(key, Accept="text/html"))
         with urllib.request.urlopen(req, timeout=120) as resp:
-            if resp.status == 200:
-                return html
+            page = resp.read()
     except (urllib.error.URLError, OSError):
-        pass
-    return f"{base}/v1/assessments/{assessment_id}"
+        return None
+    path = ROOT / "instance" / "demo-report.html"
+    path.parent.mkdir(exist_ok=True)
+    path.write_bytes(page)
+    return path
 
 
 def _stop(signum: int, frame: object) -> None:
@@ -107,13 +134,21 @@ def main() -> int:
     try:
         print(f"Starting emf-assess on {base} ...", flush=True)
         wait_healthy(base, server)
-        report = submit(base)
+        key = demo_key() if auth_required() else None
+        report = submit(base, key)
         verdict = ", ".join(f"{c['level_id']} {c['quantity']}: {'pass' if c['passes'] else 'FAIL'}"
                             for c in report["compliance"])
+        saved = save_report(base, report["id"], key)
         print(f"\nAssessment id: {report['id']}", flush=True)
-        print(f"Report:        {report_url(base, report['id'])}", flush=True)
+        print(f"Report:        {base}/v1/assessments/{report['id']}/report?format=html", flush=True)
+        if saved is not None:
+            print(f"Saved report:  {saved}", flush=True)
         print(f"JSON:          {base}/v1/assessments/{report['id']}", flush=True)
         print(f"Outcome:       {report['outcome']} ({verdict})", flush=True)
+        if key:
+            print(f"Demo key:      {key}\n               (organisation 'demo', role submit; shown once, send it as "
+                  "Authorization: Bearer <key>)", flush=True)
+            print(f"Try:           curl -H 'Authorization: Bearer {key}' {base}/v1/assessments", flush=True)
         print(f"API document:  {base}/openapi.json\nServing until Ctrl-C.", flush=True)
         return server.wait()
     except KeyboardInterrupt:

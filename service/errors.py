@@ -64,11 +64,15 @@ class ProblemError(Exception):
         Items for the ``errors`` member (``pointer``/``parameter`` and ``detail``).
     type_ : str
         Problem type URI.
+    headers : iterable of (name, value), optional
+        Extra response headers (``WWW-Authenticate``, ``Retry-After``).
     """
 
     def __init__(self, status: int, detail: str, *, errors: Iterable[dict[str, str]] = (),
-                 type_: str = "about:blank", title: str | None = None):
+                 type_: str = "about:blank", title: str | None = None,
+                 headers: Iterable[tuple[str, str]] = ()):
         super().__init__(detail)
+        self.headers = list(headers)
         self.status = status
         self.detail = detail
         self.errors = list(errors)
@@ -184,7 +188,7 @@ def _handle_engine_error(exc: EngineInputError) -> Response:
 
 def _handle_problem_error(exc: ProblemError) -> Response:
     return problem_response(exc.status, title=exc.title, detail=exc.detail, type_=exc.type,
-                            errors=exc.errors or None)
+                            errors=exc.errors or None, headers=exc.headers)
 
 
 def _handle_integrity_error(exc: IntegrityError) -> Response:
@@ -204,7 +208,9 @@ def _handle_unexpected(exc: Exception) -> Response:
 
 
 def _add_request_id(response: Response) -> Response:
+    """Every response: the request id, and ``nosniff`` so no browser second-guesses a declared type."""
     response.headers["X-Request-Id"] = request_id()
+    response.headers["X-Content-Type-Options"] = "nosniff"
     return response
 
 

@@ -63,8 +63,9 @@ class GeometryView(Protocol):
     def check(self, request: Any) -> None:
         """Geometry checks that come before the thresholds are resolved."""
 
-    def evaluate(self, request: Any, line: Any, *, max_points: int | None, zones: bool = True) -> Evaluation:
-        """The request's sets evaluated for ``line`` (the request's line or a load case of it)."""
+    def evaluate(self, request: Any, line: Any, *, bounds: Mapping[str, int] | None,
+                 zones: bool = True) -> Evaluation:
+        """The request's sets evaluated for ``line`` (the request's line or a load case of it), within ``bounds``."""
 
     def plain(self, request: Any) -> dict[str, Any]:
         """The normalised request (``input``)."""
@@ -95,13 +96,14 @@ def view_for(request: Request) -> GeometryView:
 
 
 def load_request(body: Any, limits: Mapping[str, Any]) -> Request:
-    """Validate a request body of either geometry (``limits``: ``MAX_POINTS``, ``MAX_ROUTE_POINTS``, ``MAX_CONDUCTORS``).
+    """Validate a request body of either geometry (``limits``: ``MAX_POINTS``, ``MAX_ROUTE_POINTS``,
+    ``MAX_GRID_POINTS``, ``MAX_CONDUCTORS``).
 
     :raise marshmallow.ValidationError: per-field messages (422).
     """
     if geometry_kind(body) == "route":
         return load_route_request(body, max_route_points=limits["MAX_ROUTE_POINTS"],
-                                  max_conductors=limits["MAX_CONDUCTORS"])
+                                  max_grid_points=limits["MAX_GRID_POINTS"], max_conductors=limits["MAX_CONDUCTORS"])
     return load_assessment_request(body, max_points=limits["MAX_POINTS"], max_conductors=limits["MAX_CONDUCTORS"])
 
 
@@ -113,8 +115,11 @@ def compute_report(body: Any, limits: Mapping[str, Any]) -> dict[str, Any]:
     """
     request = load_request(body, limits)
     check_report_size(request, limits["MAX_REPORT_BYTES"])
-    max_points = limits["MAX_ROUTE_POINTS"] if isinstance(request, RouteAssessmentRequest) else None
-    return build_report(request, max_points=max_points)
+    bounds = None
+    if isinstance(request, RouteAssessmentRequest):
+        bounds = {"max_points": limits["MAX_ROUTE_POINTS"], "max_segments": limits["MAX_SEGMENTS"],
+                  "max_pairs": limits["MAX_SEGMENT_POINT_PAIRS"]}
+    return build_report(request, bounds=bounds)
 
 
 ROW_BYTES = {"points": 700, "grid": 100, "case": 150, "route": 900}
@@ -209,7 +214,7 @@ def _case_entry(case_id: str, label: str, line: Any, scale: float, rows: list[di
 
 def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogue.Threshold],
                      base: tuple[Evaluation, list[Judgement], list[dict[str, Any]]],
-                     max_points: int | None) -> tuple[list, dict]:
+                     bounds: Mapping[str, int] | None) -> tuple[list, dict]:
     """(``load_cases``, ``load_case_summary``): every case on the same sets and thresholds as the base case.
 
     ``base`` is the report's own evaluation, judgements and compliance rows (the base
@@ -223,7 +228,7 @@ def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogu
                            view.case_members(base_ev))]
     judged = [("base", base_judgements)]
     evaluated = evaluate_load_cases(request.line, request.load_cases,
-                                    lambda line: view.evaluate(request, line, max_points=max_points, zones=False))
+                                    lambda line: view.evaluate(request, line, bounds=bounds, zones=False))
     for case, line, ev in evaluated:
         judgements = judge(ev, limits)
         rows = [compliance_row(view, ev, j) for j in judgements]
@@ -239,15 +244,17 @@ def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogu
     return entries, summary
 
 
-def build_report(request: Request, *, max_points: int | None = None) -> dict[str, Any]:
+def build_report(request: Request, *, bounds: Mapping[str, int] | None = None) -> dict[str, Any]:
     """Compute the report for a validated request of either geometry.
 
     Parameters
     ----------
     request : AssessmentRequest or RouteAssessmentRequest
-    max_points : int, optional
-        Route: cap on observation points over all sets (the service passes
-        ``MAX_ROUTE_POINTS``), checked exactly after the CRS transformation.
+    bounds : mapping, optional
+        Route: work bounds passed to :func:`models.route.evaluate_route` (``max_points``
+        over all sets, checked exactly after the CRS transformation; ``max_segments``;
+        ``max_pairs``); the service passes ``MAX_ROUTE_POINTS``, ``MAX_SEGMENTS`` and
+        ``MAX_SEGMENT_POINT_PAIRS``.
 
     Returns
     -------
@@ -270,7 +277,7 @@ def build_report(request: Request, *, max_points: int | None = None) -> dict[str
     view.check(request)
     check_study(view.geometry, request)
     limits = thresholds(request)
-    ev = view.evaluate(request, request.line, max_points=max_points)
+    ev = view.evaluate(request, request.line, bounds=bounds)
     judgements = judge(ev, limits)
     compliance = [compliance_row(view, ev, j) for j in judgements]
     members = {
@@ -294,7 +301,7 @@ def build_report(request: Request, *, max_points: int | None = None) -> dict[str
         members["right_of_way"] = view.edge_block(request, ev, edges, [exposure_rows(e) for e in edges])
     if request.load_cases:
         members["load_cases"], members["load_case_summary"] = load_case_blocks(
-            view, request, limits, (ev, judgements, compliance), max_points)
+            view, request, limits, (ev, judgements, compliance), bounds)
     if request.study is not None:
         members["study"] = study_block(view.geometry, request, limits, ev)
     return {k: members[k] for k in MEMBER_ORDER if k in members}

@@ -32,6 +32,7 @@ from werkzeug.exceptions import NotAcceptable, NotFound
 from models.errors import EngineInputError
 
 from . import audit, export_geopackage, export_geotiff, reports, storage
+from .access import current_tenant
 from .errors import ProblemError
 from .inputs import ChainQuerySchema, invalid_parameter, load_query
 from .json_text import plain
@@ -111,7 +112,6 @@ def _finish(body: str | bytes, mimetype: str, record: storage.AssessmentRecord, 
     response = Response(body, mimetype=mimetype)
     response.set_etag(f"{record.digest[:32]}-{fmt}-{REPORT_RENDERER_VERSION}")
     response.headers["Cache-Control"] = "private, max-age=0, must-revalidate"
-    response.headers["X-Content-Type-Options"] = "nosniff"
     if vary:
         response.vary.add("Accept")
     if filename:
@@ -241,6 +241,23 @@ def verify_assessment(assessment_id: uuid.UUID) -> Response:
     })
 
 
+def _redact_other_organisations(session, result: dict[str, Any]) -> None:
+    """With access control on, a break in another organisation's record is reported without its id.
+
+    The chain is global (one order for all organisations), so every caller sees where it
+    breaks, but only its own records are named.  ``first_break`` is ``breaks[0]`` (one object).
+    """
+    tenant = current_tenant()
+    if tenant is None:
+        return
+    named = [b for b in result["breaks"] if b["id"] is not None]
+    own = storage.ids_of_tenant(session, [uuid.UUID(b["id"]) for b in named], tenant)
+    for item in named:
+        if uuid.UUID(item["id"]) not in own:
+            item["id"] = None
+            item["reasons"].append("the record belongs to another organisation")
+
+
 @bp.get("/v1/audit/verify-chain")
 def verify_chain() -> Response:
     """Check the stored records' digests and links: the whole chain, or one page of it.
@@ -262,6 +279,7 @@ def verify_chain() -> Response:
         last = head[0] if limit is None else min(head[0], first + limit - 1)
         result = audit.verify_chain(storage.iter_chain(session, first, last), head, from_sequence=first,
                                     anchor_digest=storage.digest_before(session, first), check_head=last >= head[0])
+        _redact_other_organisations(session, result)
     result.update({"from_sequence": first, "to_sequence": max(last, first - 1),
                    "complete": last >= head[0], "next_from_sequence": last + 1 if last < head[0] else None})
     result["checked_at"] = storage.rfc3339(datetime.now(timezone.utc))

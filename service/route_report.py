@@ -11,6 +11,7 @@ lateral profile when one is requested.
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Mapping
 from typing import Any
 
 from models.evaluation import Evaluation, EvaluationSet, sub_result
@@ -112,11 +113,11 @@ class RouteView:
     def check(self, request: RouteAssessmentRequest) -> None:
         """Nothing before the thresholds: the route engine checks its input."""
 
-    def evaluate(self, request: RouteAssessmentRequest, line: Any, *, max_points: int | None = None,
+    def evaluate(self, request: RouteAssessmentRequest, line: Any, *, bounds: Mapping[str, int] | None = None,
                  zones: bool = True) -> Evaluation:
         sets = request.sets if zones else dataclasses.replace(request.sets, zones=None)
         return evaluate_route(line, request.frequency_hz, sets, crs=request.crs,
-                              soil_resistivity_ohm_m=request.soil_resistivity_ohm_m, max_points=max_points)
+                              soil_resistivity_ohm_m=request.soil_resistivity_ohm_m, **(bounds or {}))
 
     def plain(self, request: RouteAssessmentRequest) -> dict[str, Any]:
         return route_request_to_plain(request)

@@ -60,6 +60,8 @@ MAX_PATH_POSITIONS = 10_000
 MAX_ZONE_THRESHOLDS = 16
 DEFAULT_MAX_ROUTE_POINTS = 200_000
 """Default cap on observation points of one route request (all sets; ``EMF_MAX_ROUTE_POINTS``)."""
+DEFAULT_MAX_GRID_POINTS = 100_000
+"""Default cap on the nodes of one route request's grid (``EMF_MAX_GRID_POINTS``)."""
 
 _EARTH_RADIUS_M = 6_371_008.8  # mean Earth radius (IUGG), only for the grid-size estimate in lon/lat
 
@@ -399,9 +401,11 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
     zones = fields.Nested(ZonesSchema)
     right_of_way = fields.Nested(RouteRightOfWaySchema)
 
-    def __init__(self, *, max_route_points: int = DEFAULT_MAX_ROUTE_POINTS, **kwargs: Any):
+    def __init__(self, *, max_route_points: int = DEFAULT_MAX_ROUTE_POINTS,
+                 max_grid_points: int = DEFAULT_MAX_GRID_POINTS, **kwargs: Any):
         super().__init__(**kwargs)
         self.max_route_points = max_route_points
+        self.max_grid_points = max_grid_points
 
     @validates_schema
     def sets_and_size(self, data: dict[str, Any], **kwargs: Any) -> None:
@@ -422,41 +426,33 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
         counts: dict[str, float] = {}
         if "receptors" in data:
             counts["receptors"] = len(data["receptors"])
-            if counts["receptors"] > cap:
-                raise ValidationError({"receptors": {"features": [
-                    f"{len(data['receptors'])} receptors given; at most {cap} are allowed."]}})
+            _within(counts["receptors"], cap, ("receptors", "features"), "receptors given", "MAX_ROUTE_POINTS")
         if "path" in data:
             counts["path"] = _length_estimate_m(data["path"].geometry.coords, geographic) / data["path"].step_m + 2
-            if counts["path"] > cap:
-                raise ValidationError({"path": {"step_m": [
-                    f"The path has about {counts['path']:.0f} points; at most {cap} are allowed per request."]}})
+            _within(counts["path"], cap, ("path", "step_m"), "points on the path", "MAX_ROUTE_POINTS")
         if "lateral_profile" in data:
             lp = data["lateral_profile"]
             counts["lateral_profile"] = (lp.to_m - lp.from_m) / lp.step_m + 2
-            if counts["lateral_profile"] > cap:
-                raise ValidationError({"lateral_profile": {"step_m": [
-                    f"The lateral profile has about {counts['lateral_profile']:.0f} points; at most {cap} are "
-                    "allowed per request."]}})
+            _within(counts["lateral_profile"], cap, ("lateral_profile", "step_m"), "points on the lateral profile",
+                    "MAX_ROUTE_POINTS")
         if "grid" in data:
             counts["grid"] = _grid_points_estimate(data["grid"], geographic)
-            if counts["grid"] > cap:
-                raise ValidationError({"grid": {"resolution_m": [
-                    f"The grid has about {counts['grid']:.0f} points; at most {cap} are allowed per request."]}})
+            grid_cap, limit = ((self.max_grid_points, "MAX_GRID_POINTS") if self.max_grid_points < cap
+                               else (cap, "MAX_ROUTE_POINTS"))
+            _within(counts["grid"], grid_cap, ("grid", "resolution_m"), "grid points", limit)
         if "right_of_way" in data:
             row = data["right_of_way"]
             # each edge is about as long as the centre line (mitres at angle supports add or take |offset| tan)
             length = _length_estimate_m([(s.x, s.y) for s in route.supports], geographic)
             counts["right_of_way"] = 2 * (length / row.step_m + 2)
-            if counts["right_of_way"] > cap:
-                raise ValidationError({"right_of_way": {"step_m": [
-                    f"The right-of-way edges have about {counts['right_of_way']:.0f} points; at most {cap} are "
-                    "allowed per request."]}})
+            _within(counts["right_of_way"], cap, ("right_of_way", "step_m"), "points on the right-of-way edges",
+                    "MAX_ROUTE_POINTS")
         self.point_counts = counts
         total = sum(counts.values())
         if total > cap:
             largest = max(counts, key=counts.get)
             raise ValidationError({largest: [f"The evaluation sets together have about {total:.0f} points; at most "
-                                             f"{cap} are allowed per request."]})
+                                             f"{cap} are allowed per request (limit MAX_ROUTE_POINTS)."]})
         if data.get("load_cases"):
             check_load_cases(data["load_cases"], [c.id for c in route.circuits], total,
                              LOAD_CASE_POINT_FACTOR * cap)
@@ -507,12 +503,21 @@ def geometry_kind(body: Any) -> str:
     return "route" if has_route else "cross_section"
 
 
-def load_route_request(body: Any, *, max_route_points: int, max_conductors: int) -> RouteAssessmentRequest:
+def _within(count: float, cap: int, path: tuple[str, str], what: str, limit: str) -> None:
+    """Refuse a set whose (estimated) size exceeds ``cap``, naming the field and the setting."""
+    if count > cap:
+        raise ValidationError({path[0]: {path[1]: [
+            f"About {count:.0f} {what}; at most {cap} are allowed per request (limit {limit})."]}})
+
+
+def load_route_request(body: Any, *, max_route_points: int, max_conductors: int,
+                       max_grid_points: int = DEFAULT_MAX_GRID_POINTS) -> RouteAssessmentRequest:
     """Validate a route request body.
 
     :raise marshmallow.ValidationError: with per-field messages (mapped to 422).
     """
-    return RouteAssessmentSchema(max_route_points=max_route_points, max_conductors=max_conductors).load(body)
+    return RouteAssessmentSchema(max_route_points=max_route_points, max_grid_points=max_grid_points,
+                                 max_conductors=max_conductors).load(body)
 
 
 # --------------------------------------------------------------------------- normalised form

@@ -256,7 +256,7 @@ class AssessmentBaseSchema(Schema):
         n_cond = sum(len(c.conductors) for c in circuits) + len(tuple(earth_wires))
         if n_cond > self.max_conductors:
             raise ValidationError({member: [
-                f"{n_cond} conductors and earth wires given; at most {self.max_conductors} are allowed."]})
+                f"{n_cond} conductors and earth wires given; at most {self.max_conductors} are allowed (limit MAX_CONDUCTORS)."]})
 
 
 def to_plain(obj: Any) -> Any:

@@ -238,9 +238,9 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
             n = profile_point_count(p.from_m, p.to_m, p.step_m)
             if n > self.max_points:
                 raise ValidationError({"profile": {"step_m": [
-                    f"The profile has {n:.0f} points; at most {self.max_points} are allowed per request."]}})
+                    f"The profile has {n:.0f} points; at most {self.max_points} are allowed per request (limit MAX_POINTS)."]}})
         elif len(data["points"]) > self.max_points:
-            raise ValidationError(f"{len(data['points'])} points given; at most {self.max_points} are allowed.",
+            raise ValidationError(f"{len(data['points'])} points given; at most {self.max_points} are allowed (limit MAX_POINTS).",
                                   field_name="points")
         section: CrossSection = data["cross_section"]
         self.check_conductor_count(section.circuits, section.earth_wires, "cross_section")

@@ -6,6 +6,7 @@ components are horizontal and vertical (:data:`service.tables.SECTION_AXES`).
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 from models.evaluation import Evaluation
@@ -32,7 +33,7 @@ class SectionView:
     def check(self, request: AssessmentRequest) -> None:
         validate_cross_section(request.cross_section, request.frequency_hz)  # geometry and frequency first
 
-    def evaluate(self, request: AssessmentRequest, line: Any, *, max_points: int | None = None,
+    def evaluate(self, request: AssessmentRequest, line: Any, *, bounds: Mapping[str, int] | None = None,
                  zones: bool = True) -> Evaluation:
         return evaluate_section(line, request.frequency_hz, request.sets,
                                 soil_resistivity_ohm_m=request.soil_resistivity_ohm_m)

@@ -19,6 +19,16 @@ where ``prev_digest`` is the digest of the record with the previous ``sequence``
 (one row of ``chain_head``) is claimed with an ``UPDATE`` as the first statement of
 the insert transaction, which takes a row lock on PostgreSQL and the write lock
 on SQLite, so concurrent inserts queue and the chain stays linear.
+
+Organisations (tenants): with access control on (:mod:`service.access`), each
+assessment and batch row carries the ``tenant`` of the key that submitted it, and the
+request's session is *scoped*: :func:`get_session` puts the caller's tenant in
+``session.info`` and a ``do_orm_execute`` hook adds ``tenant = :tenant`` to every ORM
+query of :class:`TenantOwned` rows (SQLAlchemy's ``with_loader_criteria``), so no view
+can read another organisation's rows by forgetting a filter.  The chain walk is global
+by design and opts out with ``execution_options(all_tenants=True)``.  A record's tenant
+is part of its digest (:func:`record_digest`), so moving a record to another
+organisation breaks the chain.
 """
 
 from __future__ import annotations
@@ -55,7 +65,15 @@ from sqlalchemy import (
     text,
     update,
 )
-from sqlalchemy.orm import DeclarativeBase, Mapped, Session, mapped_column, sessionmaker
+from sqlalchemy.orm import (
+    DeclarativeBase,
+    Mapped,
+    ORMExecuteState,
+    Session,
+    mapped_column,
+    sessionmaker,
+    with_loader_criteria,
+)
 from sqlalchemy.pool import StaticPool
 
 from .json_text import dumps
@@ -94,7 +112,20 @@ class Base(DeclarativeBase):
     pass
 
 
-class AssessmentRecord(Base):
+TENANT_LENGTH = 100
+"""Longest organisation (tenant) name."""
+
+ALL_TENANTS = "all_tenants"
+"""Execution option that lifts the tenant scope of a query (the global chain walk)."""
+
+
+class TenantOwned:
+    """Rows that belong to one organisation: ``tenant`` (None when stored with access control off)."""
+
+    tenant: Mapped[str | None] = mapped_column(String(TENANT_LENGTH), nullable=True, index=True)
+
+
+class AssessmentRecord(TenantOwned, Base):
     """One stored assessment: the canonical request, the report and the chain link."""
 
     __tablename__ = "assessments"
@@ -140,7 +171,7 @@ class ChainHead(Base):
     digest: Mapped[str] = mapped_column(String(64))
 
 
-class BatchRecord(Base):
+class BatchRecord(TenantOwned, Base):
     """One submitted batch."""
 
     __tablename__ = "batches"
@@ -177,6 +208,48 @@ class BatchItem(Base):
         return json.loads(self.problem_json) if self.problem_json else None
 
 
+class ApiKey(Base):
+    """An API key: its public id, organisation, role and a salted scrypt hash of its secret (:mod:`service.access`)."""
+
+    __tablename__ = "api_keys"
+    __table_args__ = (CheckConstraint("role IN ('submit', 'read')", name="ck_api_keys_role"),)
+
+    key_id: Mapped[str] = mapped_column(String(32), primary_key=True)
+    tenant: Mapped[str] = mapped_column(String(TENANT_LENGTH), index=True)
+    role: Mapped[str] = mapped_column(String(8))
+    label: Mapped[str] = mapped_column(String(200))
+    salt: Mapped[str] = mapped_column(String(64))
+    secret_hash: Mapped[str] = mapped_column(String(128))
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime)
+    revoked_at: Mapped[datetime | None] = mapped_column(UTCDateTime, nullable=True)
+
+
+class IdempotencyKey(Base):
+    """An ``Idempotency-Key`` used on ``POST /v1/assessments``: the body it came with and the record it made.
+
+    Written in the same transaction as the record, so a key exists exactly when its
+    assessment does.  ``tenant`` is ``""`` with access control off.
+    """
+
+    __tablename__ = "idempotency_keys"
+
+    tenant: Mapped[str] = mapped_column(String(TENANT_LENGTH), primary_key=True)
+    key: Mapped[str] = mapped_column(String(255), primary_key=True)
+    body_sha256: Mapped[str] = mapped_column(String(64))
+    assessment_id: Mapped[uuid.UUID] = mapped_column(Uuid, ForeignKey("assessments.id"))
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime)
+
+
+@event.listens_for(Session, "do_orm_execute")
+def _scope_to_tenant(state: ORMExecuteState) -> None:
+    """Add ``tenant = :tenant`` to every ORM select of :class:`TenantOwned` rows in a scoped session."""
+    if "tenant" not in state.session.info or not state.is_select or state.execution_options.get(ALL_TENANTS):
+        return
+    tenant = state.session.info["tenant"]
+    state.statement = state.statement.options(with_loader_criteria(
+        TenantOwned, lambda cls: cls.tenant == tenant, include_aliases=True, track_closure_variables=False))
+
+
 @event.listens_for(AssessmentRecord, "before_update")
 def _refuse_update(mapper: Any, connection: Any, target: AssessmentRecord) -> None:
     raise PermissionError("Stored assessments are immutable.")
@@ -208,13 +281,17 @@ def report_to_json(report: Mapping[str, Any]) -> str:
     return dumps(report).decode("utf-8")
 
 
-def record_digest(canonical_request: str, report_json: str | bytes, prev_digest: str) -> str:
+def record_digest(canonical_request: str, report_json: str | bytes, prev_digest: str,
+                  tenant: str | None = None) -> str:
     """SHA-256 digest of one record, chained to its predecessor.
 
     ``sha256(utf8(canonical_request + "\\n" + report_json + "\\n" + prev_digest))`` as
-    64 lowercase hex digits.  ``canonical_request`` and ``report_json`` are the exact
-    stored column texts (``request_json``, ``report_json``); neither contains a raw
-    newline, so the separators are unambiguous.
+    64 lowercase hex digits; a record stored for an organisation appends
+    ``"\\n" + tenant`` (records without a tenant, including every record stored before
+    organisations existed, keep the original form).  ``canonical_request`` and
+    ``report_json`` are the exact stored column texts (``request_json``,
+    ``report_json``); none of the parts contains a raw newline, so the separators are
+    unambiguous.
 
     >>> record_digest("{}", "{}", GENESIS_DIGEST)[:16]
     'fc32dd59379f595f'
@@ -223,6 +300,8 @@ def record_digest(canonical_request: str, report_json: str | bytes, prev_digest:
     h.update(b"\n")
     h.update(report_json if isinstance(report_json, bytes) else report_json.encode("utf-8"))
     h.update(b"\n" + prev_digest.encode("ascii"))
+    if tenant is not None:
+        h.update(b"\n" + tenant.encode("utf-8"))
     return h.hexdigest()
 
 
@@ -234,7 +313,8 @@ def rfc3339(moment: datetime) -> str:
 # --------------------------------------------------------------------------- queries
 
 
-def insert_assessment(session: Session, canonical_request: str, report: Mapping[str, Any]) -> AssessmentRecord:
+def insert_assessment(session: Session, canonical_request: str, report: Mapping[str, Any], *,
+                      tenant: str | None = None) -> AssessmentRecord:
     """Append one assessment to the chain (caller commits).
 
     Parameters
@@ -248,6 +328,8 @@ def insert_assessment(session: Session, canonical_request: str, report: Mapping[
         The report body without ``id``/``created_at``; must hold ``title``,
         ``reference``, ``outcome``, ``engine_version`` and ``catalogue_version``.
         The stored report is ``{"id", "created_at", **report}``.
+    tenant : str, optional
+        The organisation the record belongs to (None with access control off).
 
     Returns
     -------
@@ -268,12 +350,13 @@ def insert_assessment(session: Session, canonical_request: str, report: Mapping[
     tail = memoryview(encoded)[1:] if len(encoded) > 2 else b"}"
     stored = b"".join([head.encode("ascii"), b"," if len(encoded) > 2 else b"", tail])  # one copy
     del tail, encoded
-    digest = record_digest(canonical_request, stored, prev_digest)
+    digest = record_digest(canonical_request, stored, prev_digest, tenant)
     report_json = stored.decode("utf-8")
     del stored
     record = AssessmentRecord(
         id=record_id,
         sequence=sequence,
+        tenant=tenant,
         created_at=created_at,
         reference=report["reference"],
         title=report["title"],
@@ -289,6 +372,19 @@ def insert_assessment(session: Session, canonical_request: str, report: Mapping[
     session.execute(update(ChainHead).where(ChainHead.id == 1).values(digest=digest))
     session.flush()
     return record
+
+
+def find_idempotency_key(session: Session, tenant: str | None, key: str) -> IdempotencyKey | None:
+    """The use of ``key`` by organisation ``tenant`` (None: access control off), or None."""
+    return session.get(IdempotencyKey, (tenant or "", key))
+
+
+def add_idempotency_key(session: Session, tenant: str | None, key: str, body_sha256: str,
+                        assessment_id: uuid.UUID) -> None:
+    """Record that ``key`` made ``assessment_id`` (in the record's own transaction; a twin raises IntegrityError)."""
+    session.add(IdempotencyKey(tenant=tenant or "", key=key, body_sha256=body_sha256, assessment_id=assessment_id,
+                               created_at=datetime.now(timezone.utc)))
+    session.flush()
 
 
 def get_assessment(session: Session, assessment_id: uuid.UUID) -> AssessmentRecord | None:
@@ -349,6 +445,15 @@ def list_assessments(session: Session, *, limit: int, before_sequence: int | Non
     return Page(rows, None)
 
 
+def ids_of_tenant(session: Session, ids: list[uuid.UUID], tenant: str) -> set[uuid.UUID]:
+    """Those of ``ids`` whose records belong to ``tenant``."""
+    if not ids:
+        return set()
+    return set(session.scalars(select(AssessmentRecord.id).where(AssessmentRecord.id.in_(ids),
+                                                                AssessmentRecord.tenant == tenant)
+                               .execution_options(all_tenants=True)))
+
+
 def count_assessments(session: Session) -> int:
     """Number of stored records."""
     return session.scalar(select(func.count()).select_from(AssessmentRecord)) or 0
@@ -359,7 +464,7 @@ def iter_chain(session: Session, first: int = 1, last: int | None = None,
     """Records with ``first <= sequence <= last`` (all by default) in chain order, fetched in batches."""
     seq = first - 1
     while True:
-        query = select(AssessmentRecord).where(AssessmentRecord.sequence > seq)
+        query = select(AssessmentRecord).where(AssessmentRecord.sequence > seq).execution_options(all_tenants=True)
         if last is not None:
             query = query.where(AssessmentRecord.sequence <= last)
         rows = list(session.scalars(query.order_by(AssessmentRecord.sequence).limit(batch_size)))
@@ -373,7 +478,8 @@ def digest_before(session: Session, sequence: int) -> str | None:
     """Stored digest of the record preceding ``sequence`` (:data:`GENESIS_DIGEST` before the first)."""
     if sequence <= 1:
         return GENESIS_DIGEST
-    return session.scalar(select(AssessmentRecord.digest).where(AssessmentRecord.sequence == sequence - 1))
+    return session.scalar(select(AssessmentRecord.digest).where(AssessmentRecord.sequence == sequence - 1)
+                          .execution_options(all_tenants=True))
 
 
 def chain_head(session: Session) -> tuple[int, str]:
@@ -427,7 +533,10 @@ def _sqlite_pragmas(dbapi_connection: Any, connection_record: Any) -> None:
             if attempt == _WAL_ATTEMPTS - 1:
                 raise
             time.sleep(0.02 * (attempt + 1))
-    cursor.execute("PRAGMA synchronous = NORMAL")
+    # FULL: each commit is synced to disk before it returns, so an acknowledged (201)
+    # assessment survives a power loss, not only a process crash (NORMAL in WAL mode can
+    # lose the last commits on power loss); the cost is one fsync per commit.
+    cursor.execute("PRAGMA synchronous = FULL")
     cursor.close()
 
 
@@ -490,9 +599,16 @@ def storage_of(app: Flask) -> Storage:
 
 
 def get_session() -> Session:
-    """The session of the current request (created on first use)."""
+    """The session of the current request (created on first use).
+
+    When the request was authenticated (``g.tenant`` set by :mod:`service.access`), the
+    session is scoped to that organisation's rows (module docstring).
+    """
     if "db_session" not in g:
-        g.db_session = storage_of(current_app).sessionmaker()
+        session = storage_of(current_app).sessionmaker()
+        if g.get("tenant") is not None:
+            session.info["tenant"] = g.tenant
+        g.db_session = session
     return g.db_session
 
 

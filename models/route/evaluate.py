@@ -166,6 +166,8 @@ def evaluate_route(
     crs: str | None = None,
     soil_resistivity_ohm_m: float | None = None,
     max_points: int | None = None,
+    max_segments: int | None = None,
+    max_pairs: int | None = None,
     tolerance_m: float = DEFAULT_TOLERANCE_M,
 ) -> Evaluation:
     """Electric and magnetic fields of a route on its evaluation sets, and exposure zones.
@@ -187,6 +189,13 @@ def evaluate_route(
         the 2-D engine) and added to B on every set; E is unaffected.  None: no image.
     max_points : int, optional
         Cap on the total number of observation points (and each set's own count).
+    max_segments : int, optional
+        Cap on the straight segments of each discretisation (B and E).  The charge solve
+        of E holds a dense ``n x n`` matrix (``8 n^2`` bytes) and costs about ``n^3 / 3``
+        operations, so this bounds memory and time; checked before any field is computed.
+    max_pairs : int, optional
+        Cap on (observation points) x (segments of B + segments of E), the number of
+        point-segment kernel evaluations; checked before any field is computed.
     tolerance_m : float
         Chord-to-catenary tolerance of the B discretisation [m].
 
@@ -301,6 +310,7 @@ def evaluate_route(
     # ---- fields
     seg_b = discretise_route(route_m, tolerance_m=tolerance_m)
     seg_e = discretise_route(route_m, tolerance_m=tolerance_m, max_segment_m=E_MAX_SEGMENT_M, for_electric=True)
+    _check_work(len(points), len(seg_b.start_m), len(seg_e.start_m), max_segments, max_pairs)
     labels = {
         "path": lambda i: "path.height_m",
         "lateral_profile": lambda i: "lateral_profile.height_m",
@@ -346,6 +356,19 @@ def evaluate_route(
         frame=frame, route_m=route_m, zone_thresholds=zone_thresholds, zones=zones,
         segment_counts={"b": int(len(seg_b.start_m)), "e": int(len(seg_e.start_m))},
     )
+
+
+def _check_work(n_points: int, n_b: int, n_e: int, max_segments: int | None, max_pairs: int | None) -> None:
+    """Refuse a route whose field computation would exceed the work bounds (before computing it)."""
+    if max_segments is not None and max(n_b, n_e) > max_segments:
+        raise EngineInputError("route", f"The route is cut into {n_b} straight segments for B and {n_e} for E "
+                                        f"(spans x wires x subdivisions); at most {max_segments} are allowed per "
+                                        "discretisation (limit MAX_SEGMENTS): assess fewer spans or wires per request.")
+    pairs = n_points * (n_b + n_e)
+    if max_pairs is not None and pairs > max_pairs:
+        raise EngineInputError("route", f"{n_points} observation points x {n_b + n_e} segments = {pairs} field "
+                                        f"evaluations; at most {max_pairs} are allowed per request (limit "
+                                        "MAX_SEGMENT_POINT_PAIRS): use coarser steps or fewer spans.")
 
 
 def _assumptions(frame: WorkingFrame, f: float, rho: float | None, route_m: Route, evaluation: EvaluationSets,

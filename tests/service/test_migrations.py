@@ -30,7 +30,7 @@ from service.storage import GENESIS_DIGEST, Base
 from tests.service.test_api import small_body
 
 ROOT = Path(__file__).resolve().parents[2]
-SERVICE_TABLES = {"assessments", "chain_head", "batches", "batch_items"}
+SERVICE_TABLES = {"assessments", "chain_head", "batches", "batch_items", "api_keys", "idempotency_keys"}
 LEGACY_TABLES = {"assessments", "chain_head"}  # what create_all made before migrations (revision 0001)
 HEAD = schema_migrations.head_revision()
 
@@ -66,15 +66,39 @@ def revisions(engine) -> tuple[str, ...]:
 
 
 def legacy_schema(engine) -> None:
-    """What ``create_schema`` did before migrations: ``create_all`` plus the chain-head row.
+    """What ``create_schema`` did before migrations: the two tables of that time and the chain-head row.
 
-    Only the two tables of that time (revision 0001). Valid while the models of those two tables
-    equal revision 0001; when a later revision changes them, build this database from revision
-    0001's DDL instead (``upgrade 0001`` then drop the version table).
+    Revision 0001 made exactly those tables (revision 0003 later added ``assessments.tenant``),
+    so the database is built from revision 0001's DDL and its version table dropped.
     """
+    schema_migrations.upgrade(engine, INITIAL_REVISION)
     with engine.begin() as conn:
-        Base.metadata.create_all(conn, tables=[storage.AssessmentRecord.__table__, storage.ChainHead.__table__])
-        conn.execute(storage.ChainHead.__table__.insert().values(id=1, sequence=0, digest=GENESIS_DIGEST))
+        conn.execute(text(f"DROP TABLE {schema_migrations.VERSION_TABLE}"))
+        assert tuple(conn.execute(storage.ChainHead.__table__.select()).one()) == (1, 0, GENESIS_DIGEST)
+
+
+def insert_old_record(engine) -> storage.AssessmentRecord:
+    """The demo-like small record as a release without organisations stored it, in a database of that time.
+
+    Built by today's ``insert_assessment`` (no tenant: the digest has the original form) on a
+    scratch database, then its columns other than ``tenant`` are written into ``engine``'s
+    empty chain, whatever revision its tables are at.
+    """
+    from service.report import build_report
+    from service.schemas import load_assessment_request
+
+    report = build_report(load_assessment_request(small_body(), max_points=20_001, max_conductors=64))
+    scratch = storage.make_engine("sqlite://")
+    storage.create_schema(scratch)
+    with storage.sessionmaker(scratch, expire_on_commit=False)() as session, session.begin():
+        record = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    scratch.dispose()
+    table = storage.AssessmentRecord.__table__
+    values = {c.name: getattr(record, c.name) for c in table.columns if c.name != "tenant"}
+    with engine.begin() as conn:
+        conn.execute(table.insert().values(**values))
+        conn.execute(storage.ChainHead.__table__.update().values(sequence=record.sequence, digest=record.digest))
+    return record
 
 
 def test_upgrade_of_empty_database_equals_the_models(engine):
@@ -88,13 +112,8 @@ def test_upgrade_of_empty_database_equals_the_models(engine):
 
 
 def test_legacy_database_is_stamped_upgraded_and_keeps_its_chain(engine, db_url):
-    from service.report import build_report
-    from service.schemas import load_assessment_request
-
     legacy_schema(engine)
-    report = build_report(load_assessment_request(small_body(), max_points=20_001, max_conductors=64))
-    with storage.sessionmaker(engine, expire_on_commit=False)() as session, session.begin():
-        old = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    old = insert_old_record(engine)
     assert tables(engine) == LEGACY_TABLES  # no version table: the pre-migration layout
 
     app = start(db_url)
@@ -232,12 +251,7 @@ def test_bad_migration_settings_fail_fast(settings, message):
 def test_batch_tables_upgrade_from_0001_with_records_present(engine, db_url):
     schema_migrations.upgrade(engine, "0001")
     assert tables(engine) == LEGACY_TABLES | {schema_migrations.VERSION_TABLE}
-    from service.report import build_report
-    from service.schemas import load_assessment_request
-
-    report = build_report(load_assessment_request(small_body(), max_points=20_001, max_conductors=64))
-    with storage.sessionmaker(engine, expire_on_commit=False)() as session, session.begin():
-        old = storage.insert_assessment(session, storage.canonical_json(report["input"]), report)
+    old = insert_old_record(engine)
     schema_migrations.upgrade(engine)
     assert revisions(engine) == (HEAD,) and differences(engine) == [] and tables(engine) >= SERVICE_TABLES
     schema_migrations.downgrade(engine, "0001")

@@ -7,11 +7,12 @@ import json
 import pytest
 
 from service import create_app
+from service.config import DEFAULTS
 from service.report import load_request, report_size_estimate
 
 from .golden.scenarios import scenarios
 
-LIMITS = {"MAX_POINTS": 20_001, "MAX_ROUTE_POINTS": 200_000, "MAX_CONDUCTORS": 64}
+LIMITS = DEFAULTS  # the service's default limits (service.config)
 
 
 @pytest.mark.parametrize("name", list(scenarios()))
