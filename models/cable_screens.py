@@ -67,7 +67,8 @@ from .geometry import CrossSection
 from .sources import Sources
 from .units import MU0_H_PER_M
 
-__all__ = ["ScreenCurrents", "bonded_cables", "screen_currents", "screen_transfer_matrix", "section_screen_transfer",
+__all__ = ["FORMATIONS", "ScreenCurrents", "bonded_cables", "formation_positions", "screen_currents",
+           "screen_transfer_matrix", "section_screen_transfer",
            "with_screen_currents"]
 
 OHM_PER_KM = 1e-3
@@ -214,3 +215,31 @@ def with_screen_currents(section: CrossSection, sources: Sources, frequency_hz: 
     if t is None:
         return sources
     return dataclasses.replace(sources, current_a=sources.current_a + t @ sources.current_a)
+
+
+FORMATIONS = ("flat", "trefoil")
+
+
+def formation_positions(formation: str, spacing_m: float, depth_m: float, offset_m: float = 0.0) -> np.ndarray:
+    """Centres (offset_m, height_m) of three single-core cables laid ``flat`` or in ``trefoil`` [m], shape (3, 2).
+
+    ``spacing_m`` is the centre-to-centre distance of adjacent cables (touching cables:
+    the cable's outer diameter); ``depth_m`` the depth of the group's centroid below
+    ground (of the cable axes for flat); ``offset_m`` the centroid's offset.  Flat:
+    left, middle, right.  Trefoil: apex up, bottom left, bottom right, top.  Use the
+    rows for the conductors of a :class:`models.geometry.Circuit` (phases in that order).
+
+    >>> formation_positions("flat", 0.25, 1.2).round(3).tolist()
+    [[-0.25, -1.2], [0.0, -1.2], [0.25, -1.2]]
+    >>> p = formation_positions("trefoil", 0.1, 1.0)
+    >>> np.round(np.hypot(*(p - np.roll(p, 1, axis=0)).T), 12).tolist(), round(float(p[:, 1].mean()), 12)
+    ([0.1, 0.1, 0.1], -1.0)
+    """
+    if formation == "flat":
+        dx, dy = np.array([-spacing_m, 0.0, spacing_m]), np.zeros(3)
+    elif formation == "trefoil":
+        h = spacing_m * math.sqrt(3.0) / 2.0
+        dx, dy = np.array([-spacing_m / 2.0, spacing_m / 2.0, 0.0]), np.array([-h / 3.0, -h / 3.0, 2.0 * h / 3.0])
+    else:
+        raise ValueError(f"formation must be one of {', '.join(FORMATIONS)}; instead received {formation!r}.")
+    return np.column_stack([offset_m + dx, -depth_m + dy])

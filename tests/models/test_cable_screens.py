@@ -221,3 +221,13 @@ def test_single_point_screen_needs_no_resistance():
     c = _with_screen(screen=CableScreen("single_point"))
     res = evaluate_cross_section(CrossSection((c,)), [0.0], 1.0, F_HZ)
     assert any("single-point bonded" in a for a in res.assumptions)
+
+
+def test_formation_positions_match_the_formation_geometry():
+    # flat: equal spacing on one depth; trefoil: equilateral triangle (common practice), centroid at the depth
+    from models.cable_screens import formation_positions
+
+    np.testing.assert_allclose(formation_positions("trefoil", 0.11, 1.3, 0.4), trefoil(0.11, 1.3, 0.4), atol=1e-15)
+    np.testing.assert_allclose(formation_positions("flat", 0.25, 1.3), flat(0.25, 1.3), atol=1e-15)
+    with pytest.raises(ValueError, match="formation"):
+        formation_positions("square", 0.1, 1.0)

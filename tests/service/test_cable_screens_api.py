@@ -63,6 +63,20 @@ def test_example_reports_screen_currents(client, spec):
     assert "Cable screens" in html
 
 
+def test_the_page_shows_what_the_example_gives(client):
+    page = (EXAMPLE.parents[1] / "underground-cables.md").read_text(encoding="utf-8")
+    bonded = client.post("/v1/evaluate", json=example()).get_json()
+    body = example()
+    del body["cross_section"]["circuits"][0]["screen"]
+    plain = client.post("/v1/evaluate", json=body).get_json()
+    cable = bonded["cable_screens"]["circuits"][0]["cables"][0]
+    assert f'"screen_current_a": {cable["screen_current_a"]:.2f}' in page
+    assert f'"screen_angle_deg": {cable["screen_angle_deg"]:.2f}' in page
+    assert f'"screen_to_conductor_ratio": {cable["screen_to_conductor_ratio"]:.3f}' in page
+    assert f'from {plain["maxima"]["b"]["value_ut"]:.1f} µT' in page
+    assert f'to {bonded["maxima"]["b"]["value_ut"]:.1f} µT' in page
+
+
 def test_trefoil_screen_current_matches_iec_60287_hand_calculation(client):
     report = client.post("/v1/evaluate", json=trefoil_body()).get_json()
     rs = 0.08e-3
