@@ -13,6 +13,7 @@ import functools
 import numpy as np
 
 from .electric import line_charges
+from .cable_screens import with_screen_currents
 from .errors import GeometryError, must_be
 from .geometry import CrossSection
 from .magnetic import complex_depth_m, earth_return_phasors
@@ -32,11 +33,14 @@ def _assumptions(section: CrossSection, sources: Sources, frequency_hz: float,
         "Bundles: every subconductor is modelled explicitly, for the charges (all at the bundle's "
         "voltage) and for the currents (shared equally).",
     ]
-    if any(c.kind == "underground" for c in section.circuits):
+    underground = [c for c in section.circuits if c.kind == "underground"]
+    if underground and all(c.screen is None for c in underground):
         items.append(
             "Underground circuits are screened cables: no electric field outside the cable; their "
             "magnetic field comes from the conductor currents alone (screen and sheath currents "
             "neglected).")
+    elif underground:
+        items.extend(screen_assumptions(underground))
     if rho_ohm_m is None:
         items.append("Magnetic field: earth-return currents are neglected (no ground image); soil "
                      "and air are non-magnetic (mu0).")
@@ -50,6 +54,32 @@ def _assumptions(section: CrossSection, sources: Sources, frequency_hz: float,
                      "(induced currents not computed).")
     items.append("Unperturbed fields: no person, vehicle, trees, fences or buildings; flat ground.")
     return tuple(items)
+
+
+def screen_assumptions(underground) -> list[str]:
+    """What the report says about the screens of underground circuits (some of which have screen data)."""
+    def ids(bonding):
+        return ", ".join(c.id for c in underground
+                         if (c.screen.bonding if c.screen is not None else None) == bonding)
+
+    items = ["Underground circuits are screened cables: no electric field outside the cable."]
+    if ids("both_ends"):
+        items.append(
+            f"Screens bonded at both ends (circuits {ids('both_ends')}): the circulating screen currents are "
+            "computed from the screens' resistance and the self and mutual inductances of the conductor and "
+            "screen loops (each screen a thin tube at its mean diameter, concentric with its conductor; "
+            "infinitely long parallel cables) and included in the magnetic field at the cable centres. The "
+            "screens of a circuit are joined at both ends, so they share one voltage drop and their currents "
+            "sum to zero: no screen current returns through the earth (the basis of IEC 60287-1-1's loss "
+            "factors; for unbalanced currents this errs on the high side for B).")
+    for bonding, why in (("single_point", "open at one end"),
+                         ("cross_bonded", "ideal cross-bonding, equal minor sections, cancels the induced voltages")):
+        if ids(bonding):
+            items.append(f"Screens {bonding.replace('_', '-')} bonded (circuits {ids(bonding)}) carry no "
+                         f"circulating current ({why}); their field comes from the conductor currents alone.")
+    if ids(None):
+        items.append(f"Circuits without screen data ({ids(None)}): screen and sheath currents neglected.")
+    return items
 
 
 def _observation_points(offset_m, height_m) -> tuple[np.ndarray, np.ndarray]:
@@ -260,7 +290,7 @@ def evaluate_cross_section(section: CrossSection, offset_m, height_m, frequency_
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer)) or chunk_size < 1:
         raise must_be("chunk_size", "an integer >= 1", chunk_size, GeometryError)
     frequency_hz = float(frequency_hz)
-    sources = build_sources(section)
+    sources = with_screen_currents(section, build_sources(section), frequency_hz)
     ox, oy = _observation_points(offset_m, height_m)
     _check_points(ox, oy)
 

@@ -4,7 +4,8 @@ Coordinates: ``offset_m`` is horizontal, across the line, positive to the right
 looking along the route; ``height_m`` is vertical, above flat ground (ground at 0,
 negative = buried).  Conductors run perpendicular to the section, infinitely long
 and parallel.  All values are SI except the line-to-line voltage, which the trade
-states in kV (``voltage_kv``), and per-conductor voltage overrides (``magnitude_kv``).
+states in kV (``voltage_kv``), per-conductor voltage overrides (``magnitude_kv``) and
+cable screen resistances, which data sheets state per km (``resistance_ohm_per_km``).
 
 These are plain frozen dataclasses: the service builds them from JSON (after its
 schema checks) and scripts build them directly.  Physical checks live in
@@ -64,6 +65,27 @@ class Conductor:
     voltage_to_ground: VoltagePhasor | None = None
 
 
+BONDINGS = ("both_ends", "single_point", "cross_bonded")
+"""How the metallic screens of a single-core cable circuit are bonded (see :mod:`models.cable_screens`)."""
+
+
+@dataclass(frozen=True)
+class CableScreen:
+    """Metallic screen (or sheath) of every cable of an underground circuit.
+
+    ``bonding``: one of :data:`BONDINGS`.  ``resistance_ohm_per_km`` is the screen's ac
+    resistance per cable at operating temperature [ohm/km] (the unit of cable data
+    sheets); ``mean_diameter_m`` its mean diameter [m] (IEC 60287-1-1's ``d``).  Both
+    are required for ``"both_ends"`` (the only bonding whose screens carry a
+    circulating current); for the others ``mean_diameter_m``, when given, only
+    enlarges the cable's envelope for the geometry checks.
+    """
+
+    bonding: str
+    resistance_ohm_per_km: float | None = None
+    mean_diameter_m: float | None = None
+
+
 @dataclass(frozen=True)
 class Circuit:
     """A three-phase (or single-phase) circuit.
@@ -74,7 +96,9 @@ class Circuit:
     ``kind == "underground"``: screened cables, no electric field outside;
     conductors have negative ``height_m`` (depth below ground).
     ``angle_offset_deg`` rotates every phase of the circuit (e.g. a circuit fed
-    from another winding group).
+    from another winding group).  ``screen`` (underground only, one single-core
+    cable per phase position): the cables' screens and how they are bonded; None
+    means screen currents are neglected.
     """
 
     id: str
@@ -85,6 +109,7 @@ class Circuit:
     bundle: Bundle
     reverse_sequence: bool = False
     angle_offset_deg: float = 0.0
+    screen: CableScreen | None = None
 
 
 @dataclass(frozen=True)

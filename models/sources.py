@@ -20,7 +20,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import EngineInputError, GeometryError, LoadingError, must_be
-from .geometry import Bundle, Circuit, CrossSection
+from .geometry import BONDINGS, Bundle, CableScreen, Circuit, CrossSection
 from .units import SQRT3, V_PER_KV
 
 #: Lowest and highest frequency the quasi-static engine accepts [Hz].
@@ -190,6 +190,9 @@ class Sources:
         (no electric field outside the screen, no earth-return image).
     fields : tuple of str
         Input path of each wire's conductor, e.g. ``"cross_section.earth_wires[0]"``.
+    circuit_index, conductor_index : int ndarray, shape (m,)
+        Index of the wire's circuit and of its conductor in that circuit (-1 for earth
+        wires; earth wire j has ``conductor_index`` j).
     """
 
     x_m: np.ndarray
@@ -199,6 +202,8 @@ class Sources:
     voltage_v: np.ndarray
     overhead: np.ndarray
     fields: tuple[str, ...]
+    circuit_index: np.ndarray
+    conductor_index: np.ndarray
 
 
 def _phasor(magnitude: float, angle_deg: float) -> complex:
@@ -236,6 +241,7 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
     (6, 500.0)
     """
     xs, ys, rs, currents, voltages, overhead, fields = [], [], [], [], [], [], []
+    circuit_index, conductor_index = [], []
     for i, circuit in enumerate(section.circuits):
         cpath = f"{field}.circuits[{i}]"
         angles = circuit_phase_angles_deg(circuit, cpath)
@@ -265,6 +271,8 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
                 voltages.append(voltage)
                 overhead.append(circuit.kind == "overhead")
                 fields.append(f"{cpath}.conductors[{k}]")
+                circuit_index.append(i)
+                conductor_index.append(k)
     for j, wire in enumerate(section.earth_wires):
         xs.append(wire.offset_m)
         ys.append(wire.height_m)
@@ -273,6 +281,8 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
         voltages.append(0j)
         overhead.append(True)
         fields.append(f"{field}.earth_wires[{j}]")
+        circuit_index.append(-1)
+        conductor_index.append(j)
     return Sources(
         x_m=np.asarray(xs, dtype=float),
         y_m=np.asarray(ys, dtype=float),
@@ -281,6 +291,8 @@ def build_sources(section: CrossSection, field: str = "cross_section") -> Source
         voltage_v=np.asarray(voltages, dtype=complex),
         overhead=np.asarray(overhead, dtype=bool),
         fields=tuple(fields),
+        circuit_index=np.asarray(circuit_index, dtype=np.int64),
+        conductor_index=np.asarray(conductor_index, dtype=np.int64),
     )
 
 
@@ -350,6 +362,44 @@ def _check_bundle(path: str, bundle: Bundle) -> None:
                           bundle.spacing_m, GeometryError)
 
 
+def _check_screen(path: str, circuit: Circuit) -> float:
+    """Check an underground circuit's ``screen``; return the screen's mean radius [m] (0 when not given)."""
+    screen: CableScreen = circuit.screen
+    if circuit.kind != "underground":
+        raise must_be(path, "absent for an overhead circuit (screens belong to underground cables)", "a screen",
+                      GeometryError)
+    if screen.bonding not in BONDINGS:
+        raise must_be(f"{path}.bonding", f"one of {', '.join(BONDINGS)}", screen.bonding, GeometryError)
+    if circuit.bundle.count != 1:
+        raise must_be(f"{circuit_path(path)}.bundle.count",
+                      "1 for a circuit with a screen (one single-core cable per phase position)",
+                      circuit.bundle.count, GeometryError)
+    both = screen.bonding == "both_ends"
+    for name, unit in (("resistance_ohm_per_km", "ohm/km"), ("mean_diameter_m", "m")):
+        value = getattr(screen, name)
+        if value is None:
+            if both:
+                raise must_be(f"{path}.{name}", f"given (> 0 {unit}) for screens bonded at both ends", None,
+                              LoadingError if name.startswith("resistance") else GeometryError)
+            continue
+        cls = LoadingError if name.startswith("resistance") else GeometryError
+        if check_finite(f"{path}.{name}", value, f"> 0 {unit}", cls) <= 0:
+            raise must_be(f"{path}.{name}", f"> 0 {unit}", value, cls)
+    if screen.mean_diameter_m is None:
+        return 0.0
+    d = circuit.bundle.subconductor_diameter_m
+    if screen.mean_diameter_m <= d:
+        raise must_be(f"{path}.mean_diameter_m",
+                      f"> the conductor diameter (bundle.subconductor_diameter_m = {d!r} m): the screen lies "
+                      "outside the conductor", screen.mean_diameter_m, GeometryError)
+    return screen.mean_diameter_m / 2.0
+
+
+def circuit_path(screen_path: str) -> str:
+    """``"...circuits[0]"`` from ``"...circuits[0].screen"``."""
+    return screen_path.rsplit(".", 1)[0]
+
+
 def validate_circuit(circuit: Circuit, field: str = "circuit") -> float:
     """Check a circuit's kind, loading, bundle and phase labels (not its positions).
 
@@ -365,7 +415,8 @@ def validate_circuit(circuit: Circuit, field: str = "circuit") -> float:
     Returns
     -------
     float
-        Outer radius of one phase position (bundle radius + subconductor radius) [m].
+        Outer radius of one phase position (bundle radius + subconductor radius, or
+        the screen's mean radius when a cable screen with a diameter is given) [m].
 
     Raises
     ------
@@ -390,7 +441,10 @@ def validate_circuit(circuit: Circuit, field: str = "circuit") -> float:
         raise must_be(f"{field}.conductors", "a non-empty list of conductors", [], GeometryError)
     _check_bundle(f"{field}.bundle", circuit.bundle)
     circuit_phase_angles_deg(circuit, field)
-    return bundle_radius_m(circuit.bundle) + circuit.bundle.subconductor_diameter_m / 2.0
+    outer = bundle_radius_m(circuit.bundle) + circuit.bundle.subconductor_diameter_m / 2.0
+    if getattr(circuit, "screen", None) is not None:
+        outer = max(outer, _check_screen(f"{field}.screen", circuit))
+    return outer
 
 
 def validate_cross_section(section: CrossSection, frequency_hz: float, *, field: str = "cross_section") -> None:

@@ -46,7 +46,8 @@ CAUTIONS: tuple[str, ...] = (
 
 MEMBER_ORDER = ("kind", "title", "reference", "outcome", "engine_version", "catalogue_version", "frequency_hz",
                 "compliance_quantity", "input", "crs", "results", "zones", "maxima", "compliance", "segment_counts",
-                "assumptions", "cautions", "points", "right_of_way", "load_cases", "load_case_summary", "study")
+                "assumptions", "cautions", "points", "cable_screens", "right_of_way", "load_cases", "load_case_summary",
+                "study")
 """Order of a report's members (each geometry has a subset)."""
 
 BASE_LABEL = "As requested"

@@ -636,6 +636,20 @@ def _compliance_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     return rows
 
 
+def _screen_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
+    """Rows of the cable-screen table (empty without ``cable_screens``)."""
+    rows = []
+    for circuit in (report.get("cable_screens") or {}).get("circuits", ()):
+        for cable in circuit.get("cables", ()):
+            ratio = cable.get("screen_to_conductor_ratio")
+            rows.append({"circuit": circuit.get("circuit_id", ""), "bonding": circuit.get("bonding", "").replace("_", " "),
+                         "phase": cable.get("phase", ""), "conductor": format_number(cable.get("conductor_current_a")),
+                         "screen": format_number(cable.get("screen_current_a")),
+                         "angle": f"{float(cable.get('screen_angle_deg', 0.0)):.1f}",
+                         "ratio": "" if ratio is None else f"{float(ratio):.3f}"})
+    return rows
+
+
 def _edge_rows(report: Mapping[str, Any]) -> list[dict[str, Any]]:
     """Rows of the right-of-way edge table (empty when the request gave no right-of-way)."""
     block = (report.get("right_of_way") or {})
@@ -800,6 +814,8 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "n_levels": len(compliance),
         "compliance": compliance,
         "edge_rows": _edge_rows(report),
+        "screen_rows": _screen_rows(report),
+        "screen_note": (report.get("cable_screens") or {}).get("note", ""),
         "edge_note": (report.get("right_of_way") or {}).get("note", ""),
         "figures": figures,
         "drawing": drawing,

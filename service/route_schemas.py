@@ -130,7 +130,10 @@ class RouteEarthWireSchema(_StrungSchema):
 
 
 class RouteCircuitSchema(CircuitSchema):
-    """A circuit as in the cross-section, its conductors strung along the route."""
+    """A circuit as in the cross-section, its conductors strung along the route (cable screens: cross-sections only)."""
+
+    class Meta:
+        exclude = ("screen",)
 
     conductors = fields.List(fields.Nested(RouteConductorSchema), required=True, validate=validate.Length(min=1))
 

@@ -17,7 +17,8 @@ from typing import Any
 
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
-from models.geometry import Bundle, Circuit, Conductor, CrossSection, CurrentPhasor, EarthWire, VoltagePhasor
+from models.geometry import BONDINGS, Bundle, CableScreen, Circuit, Conductor, CrossSection, CurrentPhasor
+from models.geometry import EarthWire, VoltagePhasor
 from models.load_cases import LoadCase
 from models.studies import ClearanceStudy, PhaseArrangementStudy
 from models.section_sets import (
@@ -89,6 +90,25 @@ class BundleSchema(Schema):
         return Bundle(**data)
 
 
+class CableScreenSchema(Schema):
+    bonding = fields.String(required=True, validate=validate.OneOf(BONDINGS))
+    resistance_ohm_per_km = FiniteFloat(validate=POSITIVE)
+    mean_diameter_m = FiniteFloat(validate=POSITIVE)
+
+    @validates_schema
+    def data_for_both_ends(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if data.get("bonding") != "both_ends":
+            return
+        missing = {name: ["Required when bonding is both_ends (the screen currents depend on it)."]
+                   for name in ("resistance_ohm_per_km", "mean_diameter_m") if name not in data}
+        if missing:
+            raise ValidationError(missing)
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> CableScreen:
+        return CableScreen(**data)
+
+
 class CircuitSchema(Schema):
     id = fields.String(required=True, validate=ID_TEXT)
     kind = fields.String(required=True, validate=validate.OneOf(["overhead", "underground"]))
@@ -98,6 +118,12 @@ class CircuitSchema(Schema):
     bundle = fields.Nested(BundleSchema, required=True)
     reverse_sequence = fields.Boolean(load_default=False, truthy={True}, falsy={False})
     angle_offset_deg = FiniteFloat(load_default=0.0)
+    screen = fields.Nested(CableScreenSchema)
+
+    @validates_schema
+    def screen_underground_only(self, data: dict[str, Any], **kwargs: Any) -> None:
+        if "screen" in data and data.get("kind") != "underground":
+            raise ValidationError("Only an underground circuit has cable screens.", field_name="screen")
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> Circuit:

@@ -41,6 +41,7 @@ from ..errors import EngineInputError
 from ..evaluation import Evaluation
 from ..geometry import CrossSection
 from ..magnetic import complex_depth_m, earth_return_phasors, flux_density_phasors
+from ..cable_screens import section_screen_transfer
 from ..sources import NEUTRAL_LABEL, build_sources, circuit_phase_angles_deg
 from ..units import SQRT3, V_PER_KV
 from . import RANK_BY
@@ -143,6 +144,7 @@ def unit_fields(section: CrossSection, points_m: np.ndarray, frequency_hz: float
                 soil_resistivity_ohm_m: float | None = None) -> UnitFields:
     """Unit-phasor fields of every permutable position at ``points_m`` (n, 2) = (offset, height)."""
     src = build_sources(section)
+    screens = _with_screens(section, src, frequency_hz)
     ox, oy = np.ascontiguousarray(points_m[:, 0]), np.ascontiguousarray(points_m[:, 1])
     p = None if soil_resistivity_ohm_m is None else complex_depth_m(soil_resistivity_ohm_m, frequency_hz)
     _, movable = arrangements(section)
@@ -151,10 +153,16 @@ def unit_fields(section: CrossSection, points_m: np.ndarray, frequency_hz: float
         for k in idx:
             mask = np.array([f == f"cross_section.circuits[{i}].conductors[{k}]" for f in src.fields])
             current = np.where(mask, 1.0 / mask.sum(), 0.0).astype(complex)
-            bs.append(_b(ox, oy, src, current, p))
+            bs.append(_b(ox, oy, src, screens(current), p))
             es.append(_e(ox, oy, src, mask.astype(complex)))
             positions.append((i, k))
     return UnitFields(tuple(positions), np.array(bs), np.array(es))
+
+
+def _with_screens(section, src, frequency_hz):
+    """Wire currents -> the same plus the screen currents they induce (both-end bonded cables; linear)."""
+    t = section_screen_transfer(section, src, frequency_hz)
+    return (lambda current: current) if t is None else (lambda current: current + t @ current)
 
 
 def _fixed_fields(section, points_m, movable, frequency_hz, soil):
@@ -164,7 +172,7 @@ def _fixed_fields(section, points_m, movable, frequency_hz, soil):
                              for i, idx in enumerate(movable) for k in idx) for f in src.fields])
     ox, oy = np.ascontiguousarray(points_m[:, 0]), np.ascontiguousarray(points_m[:, 1])
     p = None if soil is None else complex_depth_m(soil, frequency_hz)
-    return (_b(ox, oy, src, np.where(keep, src.current_a, 0), p),
+    return (_b(ox, oy, src, _with_screens(section, src, frequency_hz)(np.where(keep, src.current_a, 0)), p),
             _e(ox, oy, src, np.where(keep, src.voltage_v, 0)))
 
 

@@ -19,7 +19,7 @@ import numpy as np
 import pytest
 
 from models.errors import EngineInputError
-from models.geometry import Bundle, Circuit, Conductor, CrossSection, CurrentPhasor, EarthWire
+from models.geometry import Bundle, CableScreen, Circuit, Conductor, CrossSection, CurrentPhasor, EarthWire
 from models.section_sets import SectionPoint, SectionProfile, SectionRightOfWay, SectionSets, evaluate_section
 from models.studies.phase_arrangement import rank_arrangements, ranking_rows, unit_fields
 
@@ -61,6 +61,22 @@ def brute_force(section, sets, rank_by, soil=None):
         f = plain.combined
         values.append((f.e_rms_v_per_m if rank_by == "e_max" else f.b_rms_t)[rows].max())
     return ranking, np.array(values)
+
+
+def cable_trench() -> CrossSection:
+    """Invented trench: two flat cable circuits, one with both-end bonded screens, one single-point bonded."""
+    def circuit(cid, x0, bonding):
+        return Circuit(cid, "underground", 132.0, 900.0,
+                       tuple(Conductor(p, x0 + dx, -1.4) for p, dx in zip(("L1", "L2", "L3"), (-0.25, 0.0, 0.25))),
+                       Bundle(0.04), screen=CableScreen(bonding, 0.07, 0.09))
+    return CrossSection((circuit("a", -0.6, "both_ends"), circuit("b", 0.6, "single_point")))
+
+
+def test_cable_screens_enter_the_unit_fields():
+    # the screen currents are linear in the conductor currents, so the unit fields carry them exactly
+    sets = SectionSets(SectionProfile(-10.0, 10.0, 0.5, 1.0))
+    ranking, plain = brute_force(cable_trench(), sets, "b_max")
+    np.testing.assert_allclose(ranking.values_si, plain, rtol=1e-9)
 
 
 PROFILE = SectionSets(SectionProfile(-60.0, 60.0, 1.0, 1.0), right_of_way=SectionRightOfWay(-25.0, 25.0))
