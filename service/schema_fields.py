@@ -37,11 +37,26 @@ LOAD_CASE_POINT_FACTOR = 4
 """(load cases + 1) x points may be at most this many times the per-request point cap."""
 
 
+MAX_MAGNITUDE = 1e15
+"""Largest magnitude of any number in a request: far beyond every physical input (lengths in m,
+coordinates, currents in A, voltages in kV), and small enough that squares and sums of
+squares in the engine never overflow."""
+
+MAX_CURRENT_A = 100_000.0
+"""Largest phase (or earth-wire) current [A]: line currents are a few kA (common practice)."""
+MAX_VOLTAGE_KV = 2_000.0
+"""Largest line-to-line voltage [kV]: the highest AC transmission voltages are about 1,200 kV (common practice)."""
+CURRENT = validate.Range(min=0, max=MAX_CURRENT_A, error="Must be from 0 to 100000 A.")
+VOLTAGE = validate.Range(min=0, max=MAX_VOLTAGE_KV, error="Must be from 0 to 2000 kV.")
+
+
 class FiniteFloat(fields.Float):
-    """A JSON number that is finite: no strings, booleans, NaN or infinities."""
+    """A JSON number that is finite and at most :data:`MAX_MAGNITUDE` in magnitude: no strings,
+    booleans, NaN or infinities."""
 
     default_error_messages = {"invalid": "Not a valid number.",
-                              "special": "Must be a finite number (NaN and Infinity are not allowed)."}
+                              "special": "Must be a finite number (NaN and Infinity are not allowed).",
+                              "huge": "Must be at most 1e15 in magnitude."}
 
     def __init__(self, **kwargs: Any):
         kwargs.setdefault("allow_nan", False)
@@ -50,7 +65,10 @@ class FiniteFloat(fields.Float):
     def _deserialize(self, value: Any, attr: str | None, data: Mapping[str, Any] | None, **kwargs: Any) -> float:
         if isinstance(value, (str, bool)):
             raise self.make_error("invalid")
-        return super()._deserialize(value, attr, data, **kwargs)
+        number = super()._deserialize(value, attr, data, **kwargs)
+        if abs(number) > MAX_MAGNITUDE:
+            raise self.make_error("huge")
+        return number
 
 
 def nested_error(path: Iterable[Any], message: str) -> dict:
@@ -89,10 +107,10 @@ def check_lon_lat(x: float, y: float, path: Iterable[Any], y_path: Iterable[Any]
 class LoadCaseSchema(Schema):
     id = fields.String(required=True, validate=ID_TEXT)
     label = fields.String(load_default="", validate=validate.Length(max=200))
-    current_scale = FiniteFloat(load_default=1.0, validate=NON_NEGATIVE)
-    currents_a = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+    current_scale = FiniteFloat(load_default=1.0, validate=validate.Range(min=0, max=100, error="Must be from 0 to 100."))
+    currents_a = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=CURRENT),
                              validate=validate.Length(min=1))
-    voltages_kv = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+    voltages_kv = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=VOLTAGE),
                               validate=validate.Length(min=1))
 
     @validates_schema

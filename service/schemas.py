@@ -30,7 +30,9 @@ from models.section_sets import (
 )
 
 from .schema_fields import (
+    CURRENT,
     LOAD_CASE_POINT_FACTOR,
+    VOLTAGE,
     ID_TEXT,
     NON_NEGATIVE,
     POSITIVE,
@@ -46,7 +48,7 @@ from .schema_fields import (
 
 
 class CurrentPhasorSchema(Schema):
-    magnitude_a = FiniteFloat(required=True, validate=NON_NEGATIVE)
+    magnitude_a = FiniteFloat(required=True, validate=CURRENT)
     angle_deg = FiniteFloat(required=True)
 
     @post_load
@@ -55,7 +57,7 @@ class CurrentPhasorSchema(Schema):
 
 
 class VoltagePhasorSchema(Schema):
-    magnitude_kv = FiniteFloat(required=True, validate=NON_NEGATIVE)
+    magnitude_kv = FiniteFloat(required=True, validate=VOLTAGE)
     angle_deg = FiniteFloat(required=True)
 
     @post_load
@@ -112,8 +114,8 @@ class CableScreenSchema(Schema):
 class CircuitSchema(Schema):
     id = fields.String(required=True, validate=ID_TEXT)
     kind = fields.String(required=True, validate=validate.OneOf(["overhead", "underground"]))
-    voltage_kv = FiniteFloat(required=True, validate=NON_NEGATIVE)
-    current_a = FiniteFloat(required=True, validate=NON_NEGATIVE)
+    voltage_kv = FiniteFloat(required=True, validate=VOLTAGE)
+    current_a = FiniteFloat(required=True, validate=CURRENT)
     conductors = fields.List(fields.Nested(ConductorSchema), required=True, validate=validate.Length(min=1))
     bundle = fields.Nested(BundleSchema, required=True)
     reverse_sequence = fields.Boolean(load_default=False, truthy={True}, falsy={False})
