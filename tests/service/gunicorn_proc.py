@@ -169,6 +169,15 @@ def list_all_ids(base: str, page: int = 100) -> list[str]:
         url = f"{base}/v1/assessments?limit={page}&cursor={cursor}"
 
 
+def wait_batch_done(base: str, batch_id: str, timeout_s: float = 60.0) -> dict[str, Any]:
+    """Poll ``GET /v1/batches/{id}`` until no item is pending or running; the batch document."""
+    deadline = time.monotonic() + timeout_s
+    while (doc := get_json(f"{base}/v1/batches/{batch_id}"))["status"] != "done":
+        assert time.monotonic() < deadline, f"batch not done within {timeout_s} s: {doc['counts']}"
+        time.sleep(0.1)
+    return doc
+
+
 def db_counts(database_url: str) -> tuple[int, int]:
     """(rows in ``assessments``, chain head sequence), read directly from the database."""
     from sqlalchemy.orm import Session
