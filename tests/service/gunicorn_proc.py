@@ -1,14 +1,15 @@
-"""Real gunicorn processes for tests: start one on a free port, wait for /healthz, stop or kill it, talk HTTP.
+"""Real gunicorn processes for tests: start one, wait for /healthz, stop or kill it, talk HTTP.
 
-Every instance runs ``deploy/gunicorn.conf.py`` (or another config) in its own process
-group (``start_new_session``), so :func:`kill_group` can SIGKILL the master and all its
-workers at once, as a crash of the whole container would.  Each gets its own log file
-and Prometheus folder under the test's ``tmp_path``; the log's tail goes into failure
-messages.  Access control is switched off (``EMF_AUTH_REQUIRED=false``) so the tests
-exercise storage and concurrency, not keys; the engine is not warmed up at start-up
+Every instance runs ``deploy/gunicorn.conf.py`` (or another config) on 127.0.0.1 and a
+port the kernel picks, in its own process group (``start_new_session``), so
+:func:`kill_group` can SIGKILL the master and all its workers at once, as a crash of the
+whole container would.  Each gets its own log file and Prometheus folder under the
+test's ``tmp_path``; the log's tail goes into failure messages.  Access control is
+switched off (``EMF_AUTH_REQUIRED=false``) so the tests exercise storage and
+concurrency, not keys; the engine is not warmed up at start-up
 (``EMF_WARM_UP_ENGINE=false``: /healthz answers sooner, each worker loads the numba
-kernels from the disk cache on its first assessment instead).  The client is the standard library's
-``urllib`` (one connection per request), safe to use from several threads.
+kernels from the disk cache on its first assessment instead).  The client is the
+standard library's ``urllib`` (one connection per request), safe to use from threads.
 """
 
 from __future__ import annotations
@@ -16,8 +17,8 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import re
 import signal
-import socket
 import subprocess
 import sys
 import time
@@ -31,10 +32,7 @@ ROOT = Path(__file__).resolve().parents[2]
 DEPLOY_CONFIG = ROOT / "deploy" / "gunicorn.conf.py"
 
 
-def free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
+LISTENING = re.compile(r"Listening at: (http://127\.0\.0\.1:\d+) \((\d+)\)")
 
 
 @dataclass
@@ -42,9 +40,9 @@ class Instance:
     """One running gunicorn master (its process group id is its pid)."""
 
     proc: subprocess.Popen
-    base: str
     log: Path
     env: dict[str, str] = field(repr=False)
+    base: str = ""
 
     def log_tail(self, chars: int = 3000) -> str:
         try:
@@ -55,17 +53,20 @@ class Instance:
 
 def start(tmp_path: Path, database_url: str, *, name: str = "gunicorn", workers: int = 2, threads: int = 1,
           env: dict[str, str] | None = None, config: Path = DEPLOY_CONFIG, up_timeout_s: float = 90.0) -> Instance:
-    """Start gunicorn on 127.0.0.1 and a free port and wait until ``/healthz`` answers 200."""
-    port = free_port()
+    """Start gunicorn on 127.0.0.1 and wait until ``/healthz`` answers 200.
+
+    The port is 0 (the kernel picks a free one, so parallel test runs on one machine
+    cannot take each other's); the master logs the address it got, with its pid.
+    """
     log = tmp_path / f"{name}.log"
-    full_env = {**os.environ, "HOST": "127.0.0.1", "PORT": str(port), "WEB_CONCURRENCY": str(workers),
+    full_env = {**os.environ, "HOST": "127.0.0.1", "PORT": "0", "WEB_CONCURRENCY": str(workers),
                 "GUNICORN_THREADS": str(threads), "EMF_DATABASE_URL": database_url,
                 "EMF_AUTH_REQUIRED": "false", "EMF_LOG_REQUESTS": "false", "EMF_WARM_UP_ENGINE": "false",
                 "PROMETHEUS_MULTIPROC_DIR": str(tmp_path / f"{name}-metrics"), **(env or {})}
     with open(log, "ab") as out:
         proc = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", str(config)], cwd=ROOT, env=full_env,
                                 stdout=out, stderr=subprocess.STDOUT, start_new_session=True)
-    inst = Instance(proc, f"http://127.0.0.1:{port}", log, full_env)
+    inst = Instance(proc, log, full_env)
     try:
         wait_healthy(inst, up_timeout_s)
     except BaseException:
@@ -75,16 +76,20 @@ def start(tmp_path: Path, database_url: str, *, name: str = "gunicorn", workers:
 
 
 def wait_healthy(inst: Instance, timeout_s: float) -> None:
+    """Wait for the master's "Listening at" line, then for ``/healthz`` to answer 200."""
     deadline = time.monotonic() + timeout_s
     while True:
         assert inst.proc.poll() is None, f"gunicorn exited with {inst.proc.returncode}:\n{inst.log_tail()}"
+        if not inst.base:
+            found = [m for m in LISTENING.finditer(inst.log_tail(100_000)) if int(m[2]) == inst.proc.pid]
+            inst.base = found[0][1] if found else ""
         try:
-            if call("GET", inst.base + "/healthz", timeout=2)[0] == 200:
+            if inst.base and call("GET", inst.base + "/healthz", timeout=2)[0] == 200:
                 return
         except OSError:
             pass
         assert time.monotonic() < deadline, f"gunicorn did not answer /healthz within {timeout_s} s:\n{inst.log_tail()}"
-        time.sleep(0.2)
+        time.sleep(0.1)
 
 
 def _group_members(pgid: int) -> list[int]:
