@@ -65,6 +65,7 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         env = {**os.environ, "HOST": "127.0.0.1", "PORT": str(port), "WEB_CONCURRENCY": "2",
                "EMF_DATABASE_URL": f"sqlite:///{tmp}/load.sqlite3", "EMF_LOG_REQUESTS": "false",
+               "EMF_AUTH_REQUIRED": "false",  # measure the service, not key checks
                "PROMETHEUS_MULTIPROC_DIR": f"{tmp}/metrics"}
         server = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", str(ROOT / "deploy" / "gunicorn.conf.py")],
                                   cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
