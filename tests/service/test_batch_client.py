@@ -152,3 +152,30 @@ def test_idempotency_key_is_stable_per_name_and_content():
     assert a.idempotency_key == batch_client.Scenario("s1", {"y": [1, 2], "x": 1}).idempotency_key
     assert a.idempotency_key != batch_client.Scenario("s2", {"x": 1, "y": [1, 2]}).idempotency_key
     assert a.idempotency_key != copy.deepcopy(batch_client.Scenario("s1", {"x": 2, "y": [1, 2]})).idempotency_key
+
+
+def test_the_key_comes_from_the_environment_and_scenarios_belong_to_its_organisation(tmp_path, monkeypatch):
+    from .test_access import new_key
+
+    app = create_app({"DATABASE_URL": f"sqlite:///{tmp_path / 'keyed.sqlite3'}", "AUTH_REQUIRED": True})
+    server = make_server("127.0.0.1", 0, app, threaded=True)
+    threading.Thread(target=server.serve_forever, daemon=True).start()
+    url = f"http://127.0.0.1:{server.server_port}"
+    try:
+        src = tmp_path / "s.jsonl"
+        src.write_text("\n".join(json.dumps({**demo(), "reference": f"k{i}"}) for i in range(3)) + "\n",
+                       encoding="utf-8")
+        monkeypatch.delenv(batch_client.KEY_VARIABLE, raising=False)
+        assert batch_client.main([str(src), "--url", url, "--out", str(tmp_path / "none.csv"), "--quiet"]) == 1
+        assert all(r["verdict"] == "error" and "API key" in r["detail"]
+                   for r in read_csv(tmp_path / "none.csv"))
+        key = new_key(app, "org-batch")
+        monkeypatch.setenv(batch_client.KEY_VARIABLE, key)
+        status = batch_client.main([str(src), "--url", url, "--out", str(tmp_path / "keyed.csv"), "--quiet"])
+        rows = read_csv(tmp_path / "keyed.csv")
+        assert status in (0, 1) and all(r["verdict"] in ("pass", "fail") for r in rows)
+        listed = app.test_client().get("/v1/assessments", headers={"Authorization": f"Bearer {key}"}).get_json()
+        assert sorted(r["id"] for r in listed["data"]) == sorted(r["id"] for r in rows)
+    finally:
+        server.shutdown()
+        app.extensions["emf_storage"].engine.dispose()
