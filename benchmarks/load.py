@@ -33,9 +33,13 @@ def free_port() -> int:
         return s.getsockname()[1]
 
 
+HEADERS: dict[str, str] = {}
+"""Sent with every assessment request (``--auth``: the organisation's key)."""
+
+
 def timed(url: str, data: bytes | None) -> float:
     req = urllib.request.Request(url, data=data, method="POST" if data else "GET",
-                                 headers={"Content-Type": "application/json"} if data else {})
+                                 headers={"Content-Type": "application/json", **HEADERS} if data else {})
     t0 = time.perf_counter()
     with urllib.request.urlopen(req, timeout=60) as resp:
         resp.read()
@@ -53,10 +57,25 @@ def pct(values: list[float], q: float) -> float:
     return statistics.quantiles(values, n=100)[q - 1] if len(values) > 1 else values[0]
 
 
+def make_key(database_url: str) -> str:
+    """A submit key on the benchmark's database (created before gunicorn starts)."""
+    from service import access, create_app, storage
+
+    app = create_app({"DATABASE_URL": database_url, "WARM_UP_ENGINE": False, "BATCH_WORKER": False,
+                      "LOG_LEVEL": "WARNING"})
+    try:
+        with storage.storage_of(app).sessionmaker() as session, session.begin():
+            return access.create_key(session, tenant="bench", role="submit").token
+    finally:
+        storage.storage_of(app).engine.dispose()
+
+
 def main() -> int:
     ap = argparse.ArgumentParser()
     ap.add_argument("--requests", type=int, default=400)
     ap.add_argument("--threads", type=int, default=4)
+    ap.add_argument("--auth", action="store_true",
+                    help="access control on (the default deployment): assessments carry an organisation's key")
     args = ap.parse_args()
     demo = json.loads((ROOT / "service" / "examples" / "demo_cross_section.json").read_text(encoding="utf-8"))
     demo["profile"] = {"from_m": -100.0, "to_m": 100.0, "step_m": 0.5, "height_m": 1.0}
@@ -65,8 +84,10 @@ def main() -> int:
     with tempfile.TemporaryDirectory() as tmp:
         env = {**os.environ, "HOST": "127.0.0.1", "PORT": str(port), "WEB_CONCURRENCY": "2",
                "EMF_DATABASE_URL": f"sqlite:///{tmp}/load.sqlite3", "EMF_LOG_REQUESTS": "false",
-               "EMF_AUTH_REQUIRED": "false",  # measure the service, not key checks
+               "EMF_AUTH_REQUIRED": "true" if args.auth else "false",
                "PROMETHEUS_MULTIPROC_DIR": f"{tmp}/metrics"}
+        if args.auth:
+            HEADERS["Authorization"] = "Bearer " + make_key(env["EMF_DATABASE_URL"])
         server = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", str(ROOT / "deploy" / "gunicorn.conf.py")],
                                   cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         base = f"http://127.0.0.1:{port}"

@@ -74,7 +74,7 @@ def test_batch_with_invalid_items_reports_exactly_those(batch_app):
     assert assessments_count(batch_app) == 5
     rows = list(csv.DictReader(io.StringIO(client.get(doc["summary_url"]).get_data(as_text=True))))
     assert [r["status"] for r in rows] == [i["status"] for i in doc["items"]] and len(rows) == 8
-    assert rows[2]["problem"].endswith("/cross_section/circuits/0/current_a: Must be greater than or equal to 0.")
+    assert rows[2]["problem"].endswith("/cross_section/circuits/0/current_a: Must be from 0 to 100000 A.")
 
 
 def test_a_worker_that_dies_mid_item_is_taken_over_and_nothing_is_duplicated(batch_app):
