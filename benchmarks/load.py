@@ -57,17 +57,11 @@ def pct(values: list[float], q: float) -> float:
     return statistics.quantiles(values, n=100)[q - 1] if len(values) > 1 else values[0]
 
 
-def make_key(database_url: str) -> str:
-    """A submit key on the benchmark's database (created before gunicorn starts)."""
-    from service import access, create_app, storage
-
-    app = create_app({"DATABASE_URL": database_url, "WARM_UP_ENGINE": False, "BATCH_WORKER": False,
-                      "LOG_LEVEL": "WARNING"})
-    try:
-        with storage.storage_of(app).sessionmaker() as session, session.begin():
-            return access.create_key(session, tenant="bench", role="submit").token
-    finally:
-        storage.storage_of(app).engine.dispose()
+def make_key(env: dict[str, str]) -> str:
+    """A submit key on the benchmark's database, made with the documented command before gunicorn starts."""
+    out = subprocess.run([sys.executable, "-m", "flask", "--app", "service", "keys", "create", "--tenant", "bench",
+                          "--role", "submit"], cwd=ROOT, env=env, capture_output=True, text=True, check=True)
+    return out.stdout.strip().splitlines()[-1]
 
 
 def main() -> int:
@@ -87,7 +81,7 @@ def main() -> int:
                "EMF_AUTH_REQUIRED": "true" if args.auth else "false",
                "PROMETHEUS_MULTIPROC_DIR": f"{tmp}/metrics"}
         if args.auth:
-            HEADERS["Authorization"] = "Bearer " + make_key(env["EMF_DATABASE_URL"])
+            HEADERS["Authorization"] = "Bearer " + make_key(env)
         server = subprocess.Popen([sys.executable, "-m", "gunicorn", "-c", str(ROOT / "deploy" / "gunicorn.conf.py")],
                                   cwd=ROOT, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         base = f"http://127.0.0.1:{port}"
