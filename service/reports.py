@@ -25,6 +25,7 @@ from functools import lru_cache
 from typing import Any
 
 from . import geo_coordinates, plots
+from .study_view import study_section
 
 HTML_MIME = "text/html"
 CSV_MIME = "text/csv"
@@ -823,6 +824,7 @@ def html_context(report: Mapping[str, Any]) -> dict[str, Any]:
         "plan": Markup(plan) if plan else None,
         "zone_rows": _zone_rows(report) if route else [],
         "cases": cases,
+        "study": study_section(report, format_number),
         "assumption_summary": _assumption_summary(report),
         "assumptions": list(report.get("assumptions", ())),
         "model_limits": (() if route else MODEL_LIMITS_2D) + MODEL_LIMITS_COMMON,

@@ -18,6 +18,7 @@ import pytest
 
 from models.cross_section import evaluate_cross_section
 from models.studies.clearance import raise_section
+from service import reports
 from service.schema_fields import ClearanceStudySchema, PhaseArrangementStudySchema
 from service.schemas import load_assessment_request
 
@@ -27,6 +28,7 @@ from .test_openapi import check_response, spec  # noqa: F401 (fixture)
 EXAMPLES = Path(__file__).resolve().parents[2] / "service" / "examples"
 CLEARANCE = {"kind": "clearance", "threshold": "planning-0.4ut", "beyond_offset_m": 30.0,
              "min_clearance_m": 8.0, "max_clearance_m": 80.0, "tolerance_m": 0.01}
+PHASE = {"kind": "phase_arrangement", "rank_by": "b_max"}
 
 
 def demo(**changes) -> dict:
@@ -176,3 +178,25 @@ def test_normalised_input_with_a_study_loads_to_an_equal_request(client, study):
     again = load_assessment_request(report["input"], max_points=20_001, max_conductors=64)
     assert again == load_assessment_request(body, max_points=20_001, max_conductors=64)
     assert again.study is not None and again.study.kind == study["kind"]
+
+
+@pytest.mark.parametrize("study", ["clearance", "phase"])
+def test_the_printable_report_shows_the_study_per_case(client, study):
+    body = demo(study=CLEARANCE if study == "clearance" else PHASE)
+    created = client.post("/v1/assessments", json=body)
+    assert created.status_code == 201
+    report = created.get_json()
+    page = client.get(created.headers["Location"] + "/report?format=html").get_data(as_text=True)
+    section = page[page.index('<section id="study">'):page.index('<section id="assumptions">')]
+    assert section.count("<tr>") == 1 + len(report["study"]["cases"])  # header row + one per case
+    for case in report["study"]["cases"]:
+        assert f"<td>{case['label']}</td>" in section
+    if study == "clearance":
+        governing = next(c for c in report["study"]["cases"] if c["id"] == report["study"]["governing_case"])
+        found = governing["clearance_m"]
+        assert (f"{reports.format_number(found)} m" if found is not None else "NOT achieved") in section
+    else:
+        best = report["study"]["cases"][0]["best"]["arrangement"]
+        assert " / ".join(map(str, best)) in section
+    no_study = client.post("/v1/assessments", json=demo())
+    assert '<section id="study">' not in client.get(no_study.headers["Location"] + "/report?format=html").get_data(as_text=True)
