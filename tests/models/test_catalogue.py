@@ -326,27 +326,54 @@ def test_published_tables_are_continuous_at_breakpoints():
                 assert a.value_si(f) == pytest.approx(b.value_si(f), rel=0.01), (level.id, q.quantity, f)
 
 
-def test_status_follows_provenance():
-    # ICNIRP 1998 public B at 60 Hz is SEEN ("833 mG"); E at 60 Hz comes from a MEMORY formula.
-    by_q = {t.quantity: t for t in thresholds_for(["icnirp-1998-public"], 60)}
-    assert by_q["B"].status == "seen"
-    assert by_q["E"].status == "memory"
-    # Directive 2013/35/EU high AL B: 6000 µT at 50 Hz SEEN, formula 3.0e5/f MEMORY.
-    by_q = {t.quantity: t for t in thresholds_for(["eu-2013-35-high-al"], 50)}
-    assert by_q["B"].status == "seen"
-    assert {t.quantity: t for t in thresholds_for(["eu-2013-35-high-al"], 60)}["B"].status == "memory"
-    assert {t.status for t in thresholds_for(["si-uredba-1996-area-i"], 50)} == {"derived"}
-
-
-def test_every_value_has_provenance_and_memory_is_marked():
+def test_level_is_the_pieces_and_never_raised_by_a_checkpoint():
+    # ICNIRP 1998 public: 100 µT at 50 Hz is printed by a secondary page (a checkpoint), but the
+    # formula 5/f (f in kHz) was not read in the ICNIRP text: the threshold stays "memory" and its
+    # note names the checkpoint with its own level.
+    b = {t.quantity: t for t in thresholds_for(["icnirp-1998-public"], 50)}["B"]
+    assert b.status == "memory"
+    assert "Also printed for 50 Hz (secondary publication)" in b.note
+    # Directive 2013/35/EU high AL B: 6000 µT at 50 Hz printed by BBEMG, formula from memory.
+    assert {t.quantity: t for t in thresholds_for(["eu-2013-35-high-al"], 50)}["B"].status == "memory"
+    # ICNIRP 2010 Table 4 read in the official text.
+    assert {t.status for t in thresholds_for(["icnirp-2010-public"], 60)} == {"official_text"}
+    # Slovenia Area I values are worked out from ratios, not printed: memory.
+    assert {t.status for t in thresholds_for(["si-uredba-1996-area-i"], 50)} == {"memory"}
     for level in list_levels():
-        assert level.citation.startswith(level.body)
+        for q in level.quantities:
+            for f in (50, 60):
+                piece = q.piece_at(f)
+                if piece is not None:
+                    (t,) = [t for t in thresholds_for([level.id], f) if t.quantity == q.quantity]
+                    assert t.status == piece.status, (level.id, q.quantity, f)
+
+
+def test_every_row_piece_and_checkpoint_has_a_level_and_a_source_line():
+    # Issue 12: every catalogue piece has a level and a source line; official_text and secondary
+    # name the address where the text was read; memory says so; no other words are used.
+    for level in list_levels():
+        items = [level] + [p for q in level.quantities for p in (*q.pieces, *q.checkpoints)]
+        for item in items:
+            assert item.status in ("official_text", "secondary", "memory"), (level.id, item)
+            assert item.source.strip(), level.id
+            if item.status in ("official_text", "secondary"):
+                assert "http" in item.source, (level.id, item.source)
+            if item.status == "memory" and item is not level:
+                assert "memory" in item.source or "not printed" in item.source, (level.id, item.source)
+
+
+def test_ieee_rows_describe_one_document():
+    # Issue 12: title, document, year and the quoted values all describe IEEE Std C95.6-2002
+    # (the values are the C95.6-2002 MPEs quoted by the emfs.info "ICES 2002" page).
+    for level_id in ("ieee-c95.1-2019-unrestricted", "ieee-c95.1-2019-unrestricted-row",
+                     "ieee-c95.1-2019-restricted", "ieee-c95.1-2019-limbs"):
+        level = get_level(level_id)
+        assert level.year == 2002
+        assert level.document.startswith("IEEE Std C95.6-2002")
+        assert "C95.6-2002" in level.title and "C95.1" not in level.title
         for q in level.quantities:
             for p in q.pieces:
-                assert p.status in ("seen", "memory", "derived")
-                assert p.source
-                if p.status == "memory":
-                    assert "memory" in p.source, (level.id, p.source)
+                assert "C95.1" not in p.source, p.source
 
 
 def test_threshold_carries_citation_and_population():
@@ -477,10 +504,18 @@ def _b_pieces(data, i=2):
         pytest.param(lambda d: d.update(catalogue_version="one"), r"catalogue_version", id="version"),
         # A checkpoint the formula does not reproduce (e.g. a kHz/Hz slip) is caught on load.
         pytest.param(
-            lambda d: d["levels"][0]["quantities"]["B"]["checkpoints"][1].update(value=100),
-            r"levels\[0\]\.quantities\.B\.checkpoints\[1\]",
+            lambda d: d["levels"][2]["quantities"]["B"]["checkpoints"][1].update(value=0.00021),
+            r"levels\[2\]\.quantities\.B\.checkpoints\[1\]",
             id="checkpoint",
         ),
+        # 4167 V/m is the rounding of 2.5e5/60 = 4166.67; 4166 is not (no half-digit slack beyond rounding).
+        pytest.param(
+            lambda d: d["levels"][2]["quantities"]["E"]["checkpoints"][1].update(value=4166),
+            r"levels\[2\]\.quantities\.E\.checkpoints\[1\]",
+            id="checkpoint-not-the-rounding",
+        ),
+        pytest.param(lambda d: d["levels"][3].update(status="seen"), r"levels\[3\]\.status", id="old-status-word"),
+        pytest.param(lambda d: d["levels"][3].pop("source"), r"levels\[3\]\.source", id="row-source-missing"),
     ],
 )
 def test_file_validation(tmp_path, mutate, where):
