@@ -31,7 +31,27 @@ Source A (three lines, E and B, printed tables)
     calculation lists a different conductor radius (10.33 mm) from the one in its
     electrical data (2 x 26.1 mm).
 
-Phase order: the document does not say which sequence (A-B-C or A-C-B); for a single
+Source B (charge simulation of a double-circuit line with an earth wire, printed tables)
+    P&A consultants (pya.cl), "Anexo 2-15 Campos Electromagnéticos", Declaración de Impacto
+    Ambiental "Nueva Línea 2x110 kV Alto Melipilla - Bajo Melipilla, tendido del primer
+    circuito" (Región Metropolitana, Chile), March 2022, Appendix A2.1 (structure E110.S-3).
+    Read in the transcription in the same repository, file
+    ``localPDFparse/markdown/2155431343-ei-document-article-11-justification-file_id_622054.md``
+    (commit 65bc54f).  Independent of source A (other authors, other line, other method).
+    It prints the inputs (Table 1-13: six AAAC Cairo conductors, radius 0.994 cm, and one
+    earth wire, radius 0.5995 cm, with their offsets and heights), the Maxwell potential
+    coefficient matrix times 2 pi eps0 (Table 1-14), its inverse (Table 1-15), the
+    conductor voltages (Table 1-16: 110/sqrt(3) kV, earth wire 0 V) and the resulting line
+    charges divided by 2 pi eps0, in kV (Table 1-17).  Values are printed to four decimals;
+    the check is agreement to half a unit of the fourth decimal (5e-5), plus the printing
+    of the voltages (63.5090 kV, 55.0004 kV: 5e-5 kV) carried through the solve.
+    This is the electric engine's core (images, potential coefficients, the solve with an
+    earth wire at 0 V); the document's E profiles come from a finite-element program and
+    are only drawn, so no E profile of this line is checked.  Its appendix A2.4 (portal
+    EP110.2C) prints a 7 x 7 matrix for six conductors with the first row repeated as the
+    seventh and is not used.
+
+Phase order: source A does does not say which sequence (A-B-C or A-C-B); for a single
 three-phase circuit the rms field magnitudes do not depend on it (reversing the sequence
 conjugates every phasor), and the test checks both.
 """
@@ -43,7 +63,11 @@ from dataclasses import dataclass
 import numpy as np
 import pytest
 
-from models import Bundle, Circuit, Conductor, CrossSection, evaluate_cross_section
+import scipy.constants as sc
+
+from models import Bundle, Circuit, Conductor, CrossSection, EarthWire, evaluate_cross_section
+
+EPS0 = sc.epsilon_0
 
 PRINTED_HALF_UNIT = 0.005   # half a unit of the second decimal (kV/m and uT)
 GRID_M = np.arange(-40.0, 40.0 + 1e-9, 0.5)   # lateral profile on the 0.5 m grid of the printed maxima
@@ -136,3 +160,83 @@ def test_the_electric_check_resolves_the_conductor_size(case):
     e_wrong, b_wrong = profile(case, diameter_m=2 * 0.01033)
     assert abs(float(e_wrong.max()) - case.e_max[1]) > PRINTED_HALF_UNIT
     np.testing.assert_allclose(b_wrong, b_ok, rtol=1e-12)
+
+
+# ---------------------------------------------------------------------------------------
+# Source B: printed potential coefficients and charges (Tables 1-13 to 1-17)
+
+B_X_M = np.array([-2.6, -2.6, -2.6, 2.6, 2.6, 2.6, 0.0])          # Table 1-13
+B_Y_M = np.array([10.28, 13.08, 15.88, 10.28, 13.08, 15.88, 18.27])
+B_R_M = np.array([0.00994] * 6 + [0.005995])
+B_P_PRINTED = np.array([                                          # Table 1-14 (x 2 pi eps0)
+    [7.6345, 2.1214, 1.5415, 1.4057, 1.3993, 1.2499, 1.2273],
+    [2.1214, 7.8754, 2.3363, 1.3993, 1.6349, 1.6058, 1.6900],
+    [1.5415, 2.3363, 8.0694, 1.2499, 1.6058, 1.8228, 2.2719],
+    [1.4057, 1.3993, 1.2499, 7.6345, 2.1214, 1.5415, 1.2273],
+    [1.3993, 1.6349, 1.6058, 2.1214, 7.8754, 2.3363, 1.6900],
+    [1.2499, 1.6058, 1.8228, 1.5415, 2.3363, 8.0694, 2.2719],
+    [1.2273, 1.6900, 2.2719, 1.2273, 1.6900, 2.2719, 8.7152],
+])
+B_C_PRINTED = np.array([                                          # Table 1-15 (x 1/(2 pi eps0))
+    [.1482, -.0287, -.0123, -.0147, -.0105, -.0069, -.0062],
+    [-.0287, .1523, -.0290, -.0105, -.0122, -.0106, -.0113],
+    [-.0123, -.0290, .1480, -.0069, -.0106, -.0145, -.0244],
+    [-.0147, -.0105, -.0069, .1482, -.0287, -.0123, -.0062],
+    [-.0105, -.0122, -.0106, -.0287, .1523, -.0290, -.0113],   # printed ".-0105" (typo)
+    [-.0069, -.0106, -.0145, -.0123, -.0290, .1480, -.0244],
+    [-.0062, -.0113, -.0244, -.0062, -.0113, -.0244, .1336],
+])
+B_V_KV = np.array([63.5090, -31.7545 - 55.0004j, -31.7545 + 55.0004j,  # Table 1-16
+                   -31.7545 + 55.0004j, -31.7545 - 55.0004j, 63.5090, 0.0])
+B_Q_PRINTED_KV = np.array([                                       # Table 1-17, q / (2 pi eps0)
+    11.0829 + 0.6738j, -5.6922 - 9.8784j, -4.9299 + 9.9375j,
+    -4.9579 + 9.9350j, -5.7089 - 9.8688j, 11.0711 + 0.6993j, -0.2527 - 0.4376j,
+])
+B_Q_ABS_PRINTED_KV = np.array([11.1034, 11.4011, 11.0931, 11.1034, 11.4011, 11.0931, 0.5053])
+FOURTH_DECIMAL_HALF_UNIT = 5e-5
+
+
+def test_printed_potential_coefficients_and_their_inverse():
+    from models.electric import potential_coefficients
+    k = 2 * np.pi * EPS0
+    p = potential_coefficients(B_X_M, B_Y_M, B_R_M) * k
+    np.testing.assert_allclose(p, B_P_PRINTED, rtol=0, atol=FOURTH_DECIMAL_HALF_UNIT)
+    np.testing.assert_allclose(np.linalg.inv(p), B_C_PRINTED, rtol=0, atol=FOURTH_DECIMAL_HALF_UNIT)
+
+
+def test_printed_line_charges_with_an_earth_wire_at_zero_volts():
+    from models.electric import line_charges
+    k = 2 * np.pi * EPS0
+    q_kv = line_charges(B_X_M, B_Y_M, B_R_M, B_V_KV * 1e3) / k / 1e3
+    # printed voltages carry 5e-5 kV; through P^-1 (row sums of |C| < 0.3) that is < 2e-5 kV
+    np.testing.assert_allclose(q_kv.real, B_Q_PRINTED_KV.real, rtol=0, atol=FOURTH_DECIMAL_HALF_UNIT)
+    np.testing.assert_allclose(q_kv.imag, B_Q_PRINTED_KV.imag, rtol=0, atol=FOURTH_DECIMAL_HALF_UNIT)
+    np.testing.assert_allclose(np.abs(q_kv), B_Q_ABS_PRINTED_KV, rtol=0, atol=FOURTH_DECIMAL_HALF_UNIT)
+
+
+def test_the_whole_engine_uses_the_printed_charges():
+    """The cross-section engine, fed the same line through its public API, builds the same
+    charges: the field it returns equals the field of the printed charges (line charges
+    plus images, evaluated here by hand) to the printing of those charges."""
+    circuits = (
+        Circuit(id="c1", kind="overhead", voltage_kv=110.0, current_a=0.0, conductors=(
+            Conductor("L1", -2.6, 10.28), Conductor("L2", -2.6, 13.08), Conductor("L3", -2.6, 15.88)),
+            bundle=Bundle(subconductor_diameter_m=2 * 0.00994)),
+        Circuit(id="c2", kind="overhead", voltage_kv=110.0, current_a=0.0, conductors=(
+            Conductor("L3", 2.6, 10.28), Conductor("L2", 2.6, 13.08), Conductor("L1", 2.6, 15.88)),
+            bundle=Bundle(subconductor_diameter_m=2 * 0.00994)),
+    )
+    section = CrossSection(circuits=circuits, earth_wires=(EarthWire(offset_m=0.0, height_m=18.27,
+                                                                     diameter_m=2 * 0.005995),))
+    x = np.linspace(-30.0, 30.0, 61)
+    res = evaluate_cross_section(section, x, 1.0, 50.0)
+    # field of the printed charges: E = q/(2 pi eps0) * [(r - r_k)/|r - r_k|^2 - (r - r_k')/|r - r_k'|^2]
+    q_v = B_Q_PRINTED_KV * 1e3
+    dx = x[:, None] - B_X_M[None, :]
+    dy, dyi = 1.0 - B_Y_M[None, :], 1.0 + B_Y_M[None, :]
+    r2, r2i = dx**2 + dy**2, dx**2 + dyi**2
+    ex = (q_v * (dx / r2 - dx / r2i)).sum(axis=1)
+    ey = (q_v * (dy / r2 - dyi / r2i)).sum(axis=1)
+    e_printed = np.sqrt(np.abs(ex) ** 2 + np.abs(ey) ** 2)
+    # charges printed to 5e-5 kV of ~11 kV: relative 5e-6 per charge; allow 1e-4 of the peak
+    np.testing.assert_allclose(res.e_rms_v_per_m, e_printed, rtol=0, atol=1e-4 * e_printed.max())
