@@ -15,11 +15,19 @@ A piece applies for ``f_min_hz <= f < f_max_hz``; the last piece also includes
 (national rules written for one grid frequency, 50 Hz or 60 Hz).  Coefficients are converted to SI on
 load (V/m for E, T for B).
 
-Every value carries a provenance ``status``: ``"seen"`` (read in public text; the
-quote and address are in the file), ``"memory"`` (from memory of the document, to
-be verified against the primary text) or ``"derived"`` (computed from a seen
-statement).  Published single-frequency values ("checkpoints") are re-derived
-from the formulas on load, to 0.5 % (three printed significant figures).
+Every catalogue row and every piece and checkpoint carries its own provenance
+``status`` with a ``source`` line, one of three levels (:data:`STATUSES`):
+
+* ``"official_text"``: read in the official text itself; the source names the
+  document, the table or clause and where the text was read (its address);
+* ``"secondary"``: read in a named secondary publication that quotes the official
+  text (the source gives that publication and its address), not in the text itself;
+* ``"memory"``: from memory of the document, not checked against any published text.
+
+A threshold takes the level of the piece its value comes from; nothing raises a
+level, not even a checkpoint at the same frequency.  Published single-frequency
+values ("checkpoints") must round to the printed figure when the formula is
+evaluated at their frequency (the rounding of the printed last digit, no wider).
 
 Trap (see README "Reference levels"): the general-public B reference level at
 50 Hz is 100 µT under ICNIRP 1998 / EU 1999/519/EC but 200 µT under ICNIRP 2010.
@@ -34,7 +42,7 @@ import json
 import math
 import re
 from dataclasses import dataclass
-from decimal import Decimal
+from decimal import ROUND_HALF_EVEN, Decimal
 from importlib import resources
 from pathlib import Path
 from typing import Any, Literal, Sequence
@@ -92,11 +100,12 @@ def to_si(value: float, unit: str) -> float:
 
 SI_UNIT = {"E": "V/m", "B": "T"}
 FORMULAS = {"constant": 0, "inverse": 1, "inverse_square": 2}
-STATUSES = ("seen", "memory", "derived")
+STATUSES = ("official_text", "secondary", "memory")
+"""Provenance levels, strongest first (see the module docstring)."""
+LEVEL_WORDS = {"official_text": "official text", "secondary": "secondary publication", "memory": "from memory"}
 POPULATIONS = ("general public", "occupational", "general public and occupational")
 APPLIES_AT = ("any_point", "right_of_way_edge")
 """Where a row's value is compared: every evaluated point, or the right-of-way edges only."""
-CHECKPOINT_REL_TOL = 0.005
 _ID_RE = re.compile(r"^[a-z0-9][a-z0-9.\-]*$")
 _VERSION_RE = re.compile(r"^\d{4}\.\d{1,2}\.\d+$")
 _DEFAULT_FILE = "reference_levels.json"
@@ -201,6 +210,9 @@ class LevelDefinition:
         Where and how the value applies (e.g. "places of stay >= 4 h/day").
     notes : tuple of str
     quantities : tuple of QuantityDefinition
+    status, source : str
+        Provenance of the row itself (title, year, table/clause): its level
+        (:data:`STATUSES`) and where the document was read.
     applies_at : str
         Where the value is compared with the field (:data:`APPLIES_AT`):
         ``"any_point"`` (default: the maximum over every evaluated point) or
@@ -218,6 +230,8 @@ class LevelDefinition:
     scope: str
     notes: tuple[str, ...]
     quantities: tuple[QuantityDefinition, ...]
+    status: str = "memory"
+    source: str = ""
     applies_at: str = "any_point"
 
     @property
@@ -262,7 +276,8 @@ class Threshold:
     frequency_hz : float
     title, citation, population : str
     status : str
-        Provenance of the value: ``"seen"``, ``"memory"``, ``"derived"`` or ``"custom"``.
+        Provenance level of the value: one of :data:`STATUSES` (the level of the piece
+        it comes from) or ``"custom"``.
     note : str
         Scope and provenance detail (source of the piece, conversions).
     applies_at : str
@@ -374,7 +389,7 @@ def _parse_quantity(name: str, raw: Any, path: str) -> QuantityDefinition:
         if piece is None:
             raise CatalogueFileError(f"{cp}.frequency_hz", f"{f:g} Hz is outside {qd.range_text()}")
         formula_value = piece.value_si(f) / to_si(1.0, unit)
-        if abs(formula_value - value) > CHECKPOINT_REL_TOL * value:
+        if not _rounds_to(formula_value, rc["value"]):
             raise CatalogueFileError(
                 cp, f"published {value:g} {unit} at {f:g} Hz but the formula gives {formula_value:.6g} {unit}"
             )
@@ -382,11 +397,25 @@ def _parse_quantity(name: str, raw: Any, path: str) -> QuantityDefinition:
     return QuantityDefinition(name, unit, tuple(pieces), tuple(checkpoints))
 
 
+def _rounds_to(exact: float, printed: float | int) -> bool:
+    """True when ``exact`` rounded at the last printed digit of ``printed`` gives ``printed``.
+
+    The printed figure is read from its shortest decimal text (``83.3`` -> one decimal,
+    ``4167`` -> units), so a published rounded value is accepted only if it is the
+    rounding of the formula's value, not within some wider tolerance.
+
+    >>> _rounds_to(5000 / 60, 83.3), _rounds_to(5000 / 60, 83.4), _rounds_to(2.5e5 / 60, 4167)
+    (True, False, True)
+    """
+    d = Decimal(repr(printed))
+    return Decimal(repr(exact)).quantize(Decimal(1).scaleb(d.as_tuple().exponent), rounding=ROUND_HALF_EVEN) == d
+
+
 def _parse_level(raw: Any, path: str) -> LevelDefinition:
     if not isinstance(raw, dict):
         raise CatalogueFileError(path, "must be an object")
     keys = {"id", "title", "body", "document", "year", "clause", "population", "kind", "scope", "notes", "quantities",
-            "applies_at"}
+            "applies_at", "status", "source"}
     _no_extra(raw, keys, path)
     applies_at = raw.get("applies_at", "any_point")
     if applies_at not in APPLIES_AT:
@@ -421,6 +450,8 @@ def _parse_level(raw: Any, path: str) -> LevelDefinition:
         scope=_text(raw, "scope", path),
         notes=tuple(notes),
         quantities=quantities,
+        status=_status(raw, path),
+        source=_text(raw, "source", path),
         applies_at=applies_at,
     )
 
@@ -585,13 +616,11 @@ def _threshold(level: LevelDefinition, qd: QuantityDefinition, f: float) -> Thre
     piece = qd.piece_at(f)
     if piece is None:
         return None
-    status = piece.status
-    source = piece.source
+    # The value's level is its piece's level: a checkpoint never raises it, it is only named.
+    note = f"{level.scope} Value ({LEVEL_WORDS[piece.status]}): {piece.source}."
     for cp in qd.checkpoints:
-        if cp.frequency_hz == f and cp.status == "seen":
-            status, source = "seen", cp.source
-            break
-    note = f"{level.scope} Value: {source}."
+        if cp.frequency_hz == f:
+            note += f" Also printed for {f:g} Hz ({LEVEL_WORDS[cp.status]}): {cp.source}."
     return Threshold(
         level_id=level.id,
         quantity=qd.quantity,  # type: ignore[arg-type]
@@ -600,7 +629,7 @@ def _threshold(level: LevelDefinition, qd: QuantityDefinition, f: float) -> Thre
         title=level.title,
         citation=level.citation,
         population=level.population,
-        status=status,
+        status=piece.status,
         note=note,
         applies_at=level.applies_at,
     )

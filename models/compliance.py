@@ -289,7 +289,8 @@ def multi_frequency_exposure_index(
     -----
     ICNIRP 2010 (Health Phys. 99(6):818-836) requires, for simultaneous exposure at
     several frequencies below 10 MHz, ``sum_j E_j / E_R,j <= 1`` and
-    ``sum_j B_j / B_R,j <= 1`` (from memory, ICNIRP 2010, Health Phys. 99(6):818-836, multiple-frequency rule). The sum is
+    ``sum_j H_j / H_R,j <= 1`` (ICNIRP 2010, eqs. (4) and (5), p. 829, official text; in air
+    B = mu0 H, so the B ratios are the H ratios). The sum is
     linear in the amplitudes, i.e. the worst case of all phases aligned; ICNIRP also
     allows a weighted-peak method for non-sinusoidal fields, not implemented here.
     ICNIRP 1998 uses the same linear form below 1 MHz (E) and 150 kHz (H), from

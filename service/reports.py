@@ -47,9 +47,9 @@ MODEL_LIMITS_COMMON: tuple[str, ...] = (
 
 # Provenance of catalogue values (models/catalogue.py ``Threshold.status``), said plainly.
 STATUS_TEXT = {
-    "seen": "value checked against the source",
-    "memory": "value from memory, to be checked against the source",
-    "derived": "value derived from the source's formula",
+    "official_text": "value read in the official text",
+    "secondary": "value read in a secondary publication quoting the official text, not in the official text itself",
+    "memory": "value rests on memory of the document: not checked against any published text",
     "custom": "user-supplied value",
 }
 

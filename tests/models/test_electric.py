@@ -13,7 +13,9 @@ Checks, each against something outside the engine:
 * at ground level the field of charges over a conducting plane is vertical (image method);
 * linearity in V, superposition of circuits, scaling E(a x) = E(x)/a at fixed voltage,
   far-field decay (dipole 1/r^2 for one conductor and its image, 1/r^3 for a balanced set);
-* equivalent bundle radius (Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV and Above, 2nd ed. 1982 (from memory); common practice) against the
+* equivalent bundle radius against a printed worked example (12.82 cm, askfilo.com) and a printed
+  four-bundle coefficient (1.09); and (Deno & Zaffanella, EPRI Transmission Line Reference Book 345 kV
+  and Above, 2nd ed. 1982, from memory) against the
   explicit-subconductor charge simulation the engine uses.
 """
 
@@ -231,3 +233,18 @@ def test_equivalent_radius_agrees_with_explicit_subconductors(n, spacing):
     equivalent = np.sqrt(np.sum(np.abs(e) ** 2, axis=1))
     assert np.abs(equivalent - explicit).max() <= 2e-3 * explicit.max()
     np.testing.assert_allclose(equivalent, explicit, rtol=5e-3)
+
+
+def test_equivalent_bundle_radius_against_a_printed_worked_example():
+    # Printed worked example (askfilo.com question-and-answer page, "A bundled conductor line had four
+    # conductors per bundle ... corner of a square of side 25cm. The radius of each sub-conductor is
+    # 1.573cm. Find the geometric mean radius", answer "a. 12.82 cm", worked with r' = 0.7788 r,
+    # https://askfilo.com/user-question-answers-smart-solutions/a-bundled-conductor-line-had-four-conductors-per-bundle-the-3430393235363335).
+    # The same form (n r A^(n-1))^(1/n) gives the GMR when fed r' = 0.7788 r.  The page works
+    # sqrt(164.5) = 12.825 and prints 12.82: agreement to one unit of the printed last digit (0.01 cm).
+    r_prime_m = 0.7788 * 0.01573
+    gmr_m = equivalent_bundle_radius_m(Bundle(2 * r_prime_m, 4, 0.25))
+    assert abs(gmr_m * 100 - 12.82) <= 0.01
+    # Printed formula for a four-conductor bundle, GMR = 1.09 (D_s d^3)^(1/4) (quizall.hivanix.in question
+    # 491988, https://quizall.hivanix.in/question?lang=en&questionID=491988): the coefficient as printed.
+    assert round(gmr_m / (r_prime_m * 0.25**3) ** 0.25, 2) == 1.09
