@@ -12,6 +12,8 @@ JSON Pointer, with nothing stored.
 from __future__ import annotations
 
 import copy
+import json
+from pathlib import Path
 
 import pytest
 
@@ -141,3 +143,13 @@ def test_too_many_harmonic_evaluations_are_refused_before_computing(app, client)
     assert r.status_code == 422 and r.mimetype == PROBLEM
     assert [e["pointer"] for e in r.get_json()["errors"]] == ["/cross_section/circuits/0/harmonics"]
     assert stored_count(app) == 0
+
+
+def test_the_documented_example_is_answered_with_a_harmonics_member(client, spec):
+    body = json.loads((Path(__file__).resolve().parents[2] / "docs" / "examples" / "harmonics_cross_section.json")
+                      .read_text(encoding="utf-8"))
+    r = client.post("/v1/evaluate", json=body)
+    assert r.status_code == 200, r.get_data(as_text=True)
+    check_response(spec, r)
+    block = r.get_json()["harmonics"]
+    assert block["orders"] == [3, 5, 7] and [g["case_id"] for g in block["governing"]] == ["base", "peak"] * 2
