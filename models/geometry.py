@@ -65,6 +65,16 @@ class Conductor:
     voltage_to_ground: VoltagePhasor | None = None
 
 
+@dataclass(frozen=True)
+class Harmonic:
+    """One harmonic of a circuit's loading: order ``n`` (frequency ``n * f``) and rms magnitudes as fractions
+    of the fundamental (current and line-to-line voltage), see :mod:`models.harmonics`."""
+
+    order: int
+    current_fraction: float = 0.0
+    voltage_fraction: float = 0.0
+
+
 BONDINGS = ("both_ends", "single_point", "cross_bonded")
 """How the metallic screens of a single-core cable circuit are bonded (see :mod:`models.cable_screens`)."""
 
@@ -98,7 +108,7 @@ class Circuit:
     ``angle_offset_deg`` rotates every phase of the circuit (e.g. a circuit fed
     from another winding group).  ``screen`` (underground only, one single-core
     cable per phase position): the cables' screens and how they are bonded; None
-    means screen currents are neglected.
+    means screen currents are neglected.  ``harmonics``: see :class:`Harmonic`.
     """
 
     id: str
@@ -110,6 +120,8 @@ class Circuit:
     reverse_sequence: bool = False
     angle_offset_deg: float = 0.0
     screen: CableScreen | None = None
+    harmonics: tuple[Harmonic, ...] | None = None
+    """Harmonic orders of this circuit's currents and voltages (None: sinusoidal, the fundamental only)."""
 
 
 @dataclass(frozen=True)

@@ -29,6 +29,7 @@ from .route_report import ROUTE
 from .route_schemas import RouteAssessmentRequest, geometry_kind, load_route_request
 from .schemas import AssessmentRequest, load_assessment_request
 from .section_report import SECTION
+from .harmonics_report import harmonics_block
 from .study_report import check_study, study_block
 from .tables import presentation, threshold_row
 
@@ -47,7 +48,7 @@ CAUTIONS: tuple[str, ...] = (
 MEMBER_ORDER = ("kind", "title", "reference", "outcome", "engine_version", "catalogue_version", "frequency_hz",
                 "compliance_quantity", "input", "crs", "results", "zones", "maxima", "compliance", "segment_counts",
                 "assumptions", "cautions", "points", "cable_screens", "right_of_way", "load_cases", "load_case_summary",
-                "study")
+                "harmonics", "study")
 """Order of a report's members (each geometry has a subset)."""
 
 BASE_LABEL = "As requested"
@@ -266,7 +267,9 @@ def build_report(request: Request, *, bounds: Mapping[str, int] | None = None) -
         request), the geometry's members (cross-section: ``points``; route: ``crs``,
         ``results``, ``zones``, ``segment_counts``), ``maxima``, ``compliance``,
         ``assumptions``, ``cautions``, ``right_of_way`` when the request gives one, and
-        ``load_cases`` with ``load_case_summary`` when it gives load cases, ``study``
+        ``load_cases`` with ``load_case_summary`` when it gives load cases, ``harmonics`` when a
+        circuit gives harmonics (:mod:`service.harmonics_report`; a failed sum rule makes
+        ``outcome`` "fail"), ``study``
         when it gives a study (:mod:`service.study_report`).
 
     Raises
@@ -303,6 +306,11 @@ def build_report(request: Request, *, bounds: Mapping[str, int] | None = None) -
     if request.load_cases:
         members["load_cases"], members["load_case_summary"] = load_case_blocks(
             view, request, limits, (ev, judgements, compliance), bounds)
+    harmonics = harmonics_block(view, request, limits, ev, bounds)
+    if harmonics is not None:
+        members["harmonics"] = harmonics
+        if harmonics["outcome"] == "fail":
+            members["outcome"] = "fail"
     if request.study is not None:
         members["study"] = study_block(view.geometry, request, limits, ev)
     return {k: members[k] for k in MEMBER_ORDER if k in members}

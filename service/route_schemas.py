@@ -48,6 +48,8 @@ from .schema_fields import (
     AssessmentBaseSchema,
     CustomLimit,
     FiniteFloat,
+    check_harmonic_work,
+    check_harmonics,
     check_load_cases,
     check_lon_lat,
     check_unique,
@@ -140,6 +142,7 @@ class RouteCircuitSchema(CircuitSchema):
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> RouteCircuit:
         data["conductors"] = tuple(data["conductors"])
+        check_harmonics(data)
         return RouteCircuit(**data)
 
 
@@ -459,6 +462,8 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
         if data.get("load_cases"):
             check_load_cases(data["load_cases"], [c.id for c in route.circuits], total,
                              LOAD_CASE_POINT_FACTOR * cap)
+        check_harmonic_work(route.circuits, len(data.get("load_cases") or ()), total, LOAD_CASE_POINT_FACTOR * cap,
+                            "route")
 
     @staticmethod
     def _check_lon_lat(data: dict[str, Any]) -> None:
@@ -556,6 +561,8 @@ def route_request_to_plain(req: RouteAssessmentRequest) -> dict[str, Any]:
         circuits.append({"id": c.id, "kind": c.kind, "voltage_kv": c.voltage_kv, "current_a": c.current_a,
                          "conductors": conductors, "bundle": to_plain(c.bundle),
                          "reverse_sequence": c.reverse_sequence, "angle_offset_deg": c.angle_offset_deg})
+        if c.harmonics is not None:
+            circuits[-1]["harmonics"] = to_plain(list(c.harmonics))
     earth_wires = [{**_strung_plain(w), "diameter_m": w.diameter_m} for w in route.earth_wires]
     body: dict[str, Any] = {
         "title": req.title, "reference": req.reference, "frequency_hz": req.frequency_hz,

@@ -20,6 +20,8 @@ from typing import Any
 from marshmallow import Schema, ValidationError, fields, post_load, validate, validates_schema
 
 from models.catalogue import UNIT_TO_SI
+from models.geometry import Harmonic
+from models.harmonics import MAX_ORDER
 from models.load_cases import LoadCase
 from models.studies import RANK_BY, STUDY_KINDS, ClearanceStudy, PhaseArrangementStudy
 
@@ -154,6 +156,50 @@ def check_load_cases(cases: list[LoadCase], circuit_ids: list[str], n_points: fl
 def load_cases_field() -> fields.List:
     """The ``load_cases`` member of a request body."""
     return fields.List(fields.Nested(LoadCaseSchema), validate=validate.Length(min=1, max=MAX_LOAD_CASES))
+
+
+# --------------------------------------------------------------------------- harmonics
+
+
+FRACTION = validate.Range(min=0, max=1, error="Must be from 0 to 1 (a fraction of the fundamental).")
+
+
+class HarmonicSchema(Schema):
+    order = fields.Integer(required=True, strict=True, validate=validate.Range(
+        min=2, max=MAX_ORDER, error=f"Must be an integer from 2 to {MAX_ORDER} (1 is the fundamental)."))
+    current_fraction = FiniteFloat(load_default=0.0, validate=FRACTION)
+    voltage_fraction = FiniteFloat(load_default=0.0, validate=FRACTION)
+
+    @post_load
+    def make(self, data: dict[str, Any], **kwargs: Any) -> Harmonic:
+        return Harmonic(**data)
+
+
+def harmonics_field() -> fields.List:
+    """The ``harmonics`` member of a circuit (both geometries): unique orders, checked by :func:`check_harmonics`."""
+    return fields.List(fields.Nested(HarmonicSchema), validate=validate.Length(min=1, max=MAX_ORDER - 1))
+
+
+def check_harmonics(data: dict[str, Any]) -> None:
+    """A circuit's harmonic orders are unique (422 at ``harmonics/<k>/order``); the list becomes a tuple."""
+    if "harmonics" in data:
+        check_unique([str(h.order) for h in data["harmonics"]], lambda k: ("harmonics", k, "order"),
+                     "harmonic order")
+        data["harmonics"] = tuple(data["harmonics"])
+
+
+def check_harmonic_work(circuits: Iterable[Any], cases: int, n_points: float, cap: float, member: str) -> None:
+    """(harmonic orders + 1) x (load cases + 1) x points <= ``cap`` (422 at ``<member>/circuits/<i>/harmonics``)."""
+    circuits = list(circuits)
+    orders = {h.order for c in circuits for h in (c.harmonics or ())}
+    if not orders:
+        return
+    total = (len(orders) + 1) * (cases + 1) * n_points
+    if total > cap:
+        first = next(i for i, c in enumerate(circuits) if c.harmonics)
+        raise ValidationError(nested_error((member, "circuits", first, "harmonics"), (
+            f"{len(orders) + 1} frequencies x {cases + 1} cases x {n_points:.0f} points = {total:.0f} evaluated "
+            f"points exceed {cap:.0f}; give fewer harmonic orders, load cases or points.")))
 
 
 # --------------------------------------------------------------------------- studies

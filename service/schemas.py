@@ -39,8 +39,11 @@ from .schema_fields import (
     AssessmentBaseSchema,
     CustomLimit,
     FiniteFloat,
+    check_harmonic_work,
+    check_harmonics,
     check_load_cases,
     check_unique,
+    harmonics_field,
 )
 
 
@@ -121,6 +124,7 @@ class CircuitSchema(Schema):
     reverse_sequence = fields.Boolean(load_default=False, truthy={True}, falsy={False})
     angle_offset_deg = FiniteFloat(load_default=0.0)
     screen = fields.Nested(CableScreenSchema)
+    harmonics = harmonics_field()
 
     @validates_schema
     def screen_underground_only(self, data: dict[str, Any], **kwargs: Any) -> None:
@@ -130,6 +134,7 @@ class CircuitSchema(Schema):
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> Circuit:
         data["conductors"] = tuple(data["conductors"])
+        check_harmonics(data)
         return Circuit(**data)
 
 
@@ -272,6 +277,10 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
                                   field_name="points")
         section: CrossSection = data["cross_section"]
         self.check_conductor_count(section.circuits, section.earth_wires, "cross_section")
+        n = profile_point_count(data["profile"].from_m, data["profile"].to_m, data["profile"].step_m) \
+            if has_profile else len(data["points"])
+        check_harmonic_work(section.circuits, len(data.get("load_cases") or ()), n + 2,
+                            LOAD_CASE_POINT_FACTOR * self.max_points, "cross_section")
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> AssessmentRequest:

@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..geometry import Bundle, CurrentPhasor, VoltagePhasor
+from ..geometry import Bundle, CurrentPhasor, Harmonic, VoltagePhasor
 
 
 @dataclass(frozen=True)
@@ -78,6 +78,7 @@ class RouteCircuit:
     bundle: Bundle
     reverse_sequence: bool = False
     angle_offset_deg: float = 0.0
+    harmonics: tuple[Harmonic, ...] | None = None
 
 
 @dataclass(frozen=True)
