@@ -1,5 +1,9 @@
 """Load cases in cross-section requests: what-if loading judged in one report.
 
+Routes also take sag load cases (conductor temperature): the level-span catenary
+(lowest point one sag below the attachments; common practice, any statics text) and
+consistency with a separate request built with the cool sags.
+
 References: superposition (B linear in the currents, E in the voltages) checked
 against separate requests built with the changed values; Ampère's law for one
 long straight conductor (mu0 from scipy.constants, CODATA); the OpenAPI document
@@ -8,7 +12,9 @@ for the response shape.
 
 from __future__ import annotations
 
+import json
 import math
+from pathlib import Path
 
 import pytest
 import scipy.constants
@@ -261,3 +267,17 @@ def test_cross_section_sag_case_is_422_naming_the_member(app, client, member):
     name = next(iter(member))
     assert any(e["pointer"] == f"/load_cases/0/{name}" and "no spans" in e["detail"] for e in errors), errors
     assert stored_count(app) == before
+
+
+def test_the_documented_sag_example_gives_what_the_docs_say(client):
+    # docs/routes.md: lowest conductor 10.5 m hot and 12.8 m cool (18 m attachments, level spans,
+    # sags 7.5 m and 5.2 m); the hot (base) case governs both thresholds.
+    root = Path(__file__).resolve().parents[2]
+    body = json.loads((root / "docs" / "examples" / "route_sag_cases.json").read_text(encoding="utf-8"))
+    report = client.post("/v1/evaluate", json=body).get_json()
+    hot, cool = report["load_cases"]
+    assert hot["loading"]["lowest_conductor"]["height_m"] == pytest.approx(18.0 - 7.5, abs=1e-9)
+    assert cool["loading"]["lowest_conductor"]["height_m"] == pytest.approx(18.0 - 5.2, abs=1e-9)
+    assert {g["case_id"] for g in report["load_case_summary"]["governing"]} == {"base"}
+    text = (root / "docs" / "routes.md").read_text(encoding="utf-8")
+    assert '"lowest_conductor": {"height_m": 10.5' in text and "12.8 m" in text
