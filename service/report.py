@@ -22,6 +22,7 @@ from models.evaluation import Evaluation
 from models.judging import BASIS_NOTES, COMPLIANCE_QUANTITY, EdgeMaximum, Judgement, judge, with_distances
 from models.judging import edge_maxima, governing_cases
 from models.load_cases import evaluate_load_cases
+from models.route import lowest_point
 from models.units import t_to_ut, v_per_m_to_kv_per_m
 from marshmallow import ValidationError
 
@@ -205,13 +206,33 @@ def _outcome(rows: list[dict[str, Any]]) -> str:
 
 
 def _case_entry(case_id: str, label: str, line: Any, scale: float, rows: list[dict[str, Any]],
-                maxima_: dict[str, Any], extra: dict[str, Any]) -> dict[str, Any]:
+                maxima_: dict[str, Any], extra: dict[str, Any], sag: dict[str, Any] | None = None) -> dict[str, Any]:
     keep = ("level_id", "quantity", "basis", "exposure_index", "passes", "max_kv_m", "max_ut")
-    return {"id": case_id, "label": label,
-            "loading": {"current_scale": scale, "currents_a": {c.id: c.current_a for c in line.circuits},
-                        "voltages_kv": {c.id: c.voltage_kv for c in line.circuits}},
+    loading = {"current_scale": scale, "currents_a": {c.id: c.current_a for c in line.circuits},
+               "voltages_kv": {c.id: c.voltage_kv for c in line.circuits}}
+    return {"id": case_id, "label": label, "loading": {**loading, **(sag or {})},
             "outcome": _outcome(rows), "maxima": maxima_,
             "compliance": [{k: r[k] for k in keep if k in r} for r in rows], **extra}
+
+
+def _circuit_sag_m(circuit: Any) -> float | None:
+    """The circuit's mid-span sag when every conductor gives the same ``sag_m``; None otherwise
+    (conductors given by tension and weight, whose sag differs from span to span, or unequal sags)."""
+    if circuit.kind == "underground":
+        return 0.0
+    sags = {k.sag_m for k in circuit.conductors}
+    if len(sags) != 1 or any(k.horizontal_tension_n is not None for k in circuit.conductors):
+        return None
+    return float(sags.pop())
+
+
+def sag_members(line: Any, evaluation: Evaluation) -> dict[str, Any]:
+    """A route case's sags and its lowest phase conductor (least clearance), for the case's ``loading``."""
+    low = lowest_point(evaluation.route_m)
+    return {"sag_m": {c.id: _circuit_sag_m(c) for c in line.circuits},
+            "earth_wire_sag_m": [float(w.sag_m) for w in line.earth_wires],
+            "lowest_conductor": None if low is None else {"height_m": low.height_m, "wire": low.wire,
+                                                          "span": low.span}}
 
 
 def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogue.Threshold],
@@ -226,8 +247,10 @@ def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogu
     :raise models.errors.EngineInputError: a load case the line cannot take (field ``load_cases[i]...``).
     """
     base_ev, base_judgements, base_rows = base
+    # a route whose cases change the sag: every entry (the hot base case too) states its sags and lowest conductor
+    sags = base_ev.route_m is not None and any(case.changes_sag for case in request.load_cases)
     entries = [_case_entry("base", BASE_LABEL, request.line, 1.0, base_rows, maxima(view, base_ev),
-                           view.case_members(base_ev))]
+                           view.case_members(base_ev), sag_members(request.line, base_ev) if sags else None)]
     judged = [("base", base_judgements)]
     evaluated = evaluate_load_cases(request.line, request.load_cases,
                                     lambda line: view.evaluate(request, line, bounds=bounds, zones=False))
@@ -235,7 +258,7 @@ def load_case_blocks(view: GeometryView, request: Request, limits: list[catalogu
         judgements = judge(ev, limits)
         rows = [compliance_row(view, ev, j) for j in judgements]
         entries.append(_case_entry(case.id, case.label or case.id, line, case.current_scale, rows,
-                                   maxima(view, ev), view.case_members(ev)))
+                                   maxima(view, ev), view.case_members(ev), sag_members(line, ev) if sags else None))
         judged.append((case.id, judgements))
     governing = [{"level_id": j.compliance.threshold.level_id, "quantity": j.compliance.threshold.quantity,
                   "case_id": case_id, "exposure_index": float(j.exposure_index), "passes": bool(j.passes)}

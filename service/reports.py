@@ -711,11 +711,15 @@ def _load_cases(report: Mapping[str, Any]) -> dict[str, Any] | None:
             series_b.append((label, [p["offset_m"] for p in pts], [p.get("b_ut") for p in pts]))
             series_e.append((label, [p["offset_m"] for p in pts], [p.get("e_kv_m") for p in pts]))
         maxima = case.get("maxima") or {}
+        low = (case.get("loading") or {}).get("lowest_conductor")
         table.append({"label": label, "outcome": case.get("outcome", ""),
                       "e": format_number((maxima.get("e") or {}).get("value_kv_m")),
-                      "b": format_number((maxima.get("b") or {}).get("value_ut"))})
+                      "b": format_number((maxima.get("b") or {}).get("value_ut")),
+                      "low": format_number(low.get("height_m")) if isinstance(low, Mapping) else ""})
     figure = plots.load_cases_svg(series_b, thresholds=_thresholds_for_plot(report, "B")) if series_b else None
-    out: dict[str, Any] = {"figure": figure, "table": table}
+    # a route whose cases change the sag: the lowest conductor height (least clearance) per case
+    sag = any("lowest_conductor" in (case.get("loading") or {}) for case in cases)
+    out: dict[str, Any] = {"figure": figure, "table": table, "sag": sag}
     summary = report.get("load_case_summary")
     if isinstance(summary, Mapping):
         labels = {str(c.get("id")): str(c.get("label") or c.get("id")) for c in cases}

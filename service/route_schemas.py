@@ -460,8 +460,8 @@ class RouteAssessmentSchema(AssessmentBaseSchema):
             raise ValidationError({largest: [f"The evaluation sets together have about {total:.0f} points; at most "
                                              f"{cap} are allowed per request (limit MAX_ROUTE_POINTS)."]})
         if data.get("load_cases"):
-            check_load_cases(data["load_cases"], [c.id for c in route.circuits], total,
-                             LOAD_CASE_POINT_FACTOR * cap)
+            check_load_cases(data["load_cases"], route.circuits, total, LOAD_CASE_POINT_FACTOR * cap,
+                             earth_wires=len(route.earth_wires))
         check_harmonic_work(route.circuits, len(data.get("load_cases") or ()), total, LOAD_CASE_POINT_FACTOR * cap,
                             "route")
 

@@ -114,43 +114,78 @@ class LoadCaseSchema(Schema):
                              validate=validate.Length(min=1))
     voltages_kv = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=VOLTAGE),
                               validate=validate.Length(min=1))
+    sag_m = fields.Dict(keys=fields.String(validate=ID_TEXT), values=FiniteFloat(validate=NON_NEGATIVE),
+                        validate=validate.Length(min=1))
+    earth_wire_sag_m = fields.List(FiniteFloat(validate=NON_NEGATIVE), validate=validate.Length(min=1))
 
     @validates_schema
     def changes_something(self, data: dict[str, Any], **kwargs: Any) -> None:
         if data.get("id") == "base":
             raise ValidationError("'base' names the request as given; choose another id.", field_name="id")
-        if data.get("current_scale", 1.0) == 1.0 and not data.get("currents_a") and not data.get("voltages_kv"):
-            raise ValidationError("A load case must change the loading: give current_scale, currents_a or "
-                                  "voltages_kv.", field_name="current_scale")
+        if (data.get("current_scale", 1.0) == 1.0
+                and not any(data.get(k) for k in ("currents_a", "voltages_kv", "sag_m", "earth_wire_sag_m"))):
+            raise ValidationError("A load case must change the loading or the sag: give current_scale, currents_a, "
+                                  "voltages_kv, sag_m or earth_wire_sag_m.", field_name="current_scale")
 
     @post_load
     def make(self, data: dict[str, Any], **kwargs: Any) -> LoadCase:
+        if "earth_wire_sag_m" in data:
+            data["earth_wire_sag_m"] = tuple(data["earth_wire_sag_m"])
         return LoadCase(**data)
 
 
-def check_load_cases(cases: list[LoadCase], circuit_ids: list[str], n_points: float, cap: float) -> None:
-    """Load cases fit the request: unique ids, known circuits, (cases + 1) x points <= ``cap``.
+def check_load_cases(cases: list[LoadCase], circuits: Iterable[Any], n_points: float, cap: float, *,
+                     earth_wires: int | None = None) -> None:
+    """Load cases fit the request: unique ids, known circuits, sags only where there are spans,
+    (cases + 1) x points <= ``cap``.
+
+    ``circuits`` are the request's circuits (``id`` and ``kind``); ``earth_wires`` is a
+    route's number of earth wires, ``None`` for a cross-section (no spans: a case's sag is refused).
 
     :raise marshmallow.ValidationError: naming ``load_cases/<i>/id``, ``.../currents_a/<circuit>``,
-        ``.../voltages_kv/<circuit>`` or ``load_cases``.
+        ``.../voltages_kv/<circuit>``, ``.../sag_m[/<circuit>]``, ``.../earth_wire_sag_m`` or ``load_cases``.
     """
+    kinds = {c.id: c.kind for c in circuits}
+    circuit_ids = list(kinds)
     errors: dict[int, Any] = {}
     seen: set[str] = set()
     for i, case in enumerate(cases):
         if case.id in seen:
             errors.setdefault(i, {})["id"] = [f"Load case id {case.id!r} is used twice."]
         seen.add(case.id)
-        for name in ("currents_a", "voltages_kv"):
+        for name in ("currents_a", "voltages_kv", "sag_m"):
             unknown = {cid: [f"No circuit {cid!r} in the request (circuits: {', '.join(circuit_ids)})."]
                        for cid in (getattr(case, name) or {}) if cid not in circuit_ids}
             if unknown:
                 errors.setdefault(i, {})[name] = unknown
+        errors_i = _sag_errors(case, kinds, earth_wires)
+        if errors_i:
+            errors.setdefault(i, {}).update(errors_i)
     if errors:
         raise ValidationError({"load_cases": errors})
     if (len(cases) + 1) * n_points > cap:
         raise ValidationError(f"{len(cases) + 1} cases (with the base case) x {n_points:.0f} points exceed "
                               f"{cap:.0f} evaluated points; use fewer load cases or fewer points.",
                               field_name="load_cases")
+
+
+def _sag_errors(case: LoadCase, kinds: Mapping[str, str], earth_wires: int | None) -> dict[str, Any]:
+    """Messages for a case's ``sag_m`` / ``earth_wire_sag_m`` that the geometry cannot take (unknown ids aside)."""
+    out: dict[str, Any] = {}
+    if earth_wires is None:
+        for name in ("sag_m", "earth_wire_sag_m"):
+            if getattr(case, name):
+                out[name] = ["A cross-section has no spans, so a load case cannot change the sag; give the "
+                             "conductor heights of that case in its own request (or use a route)."]
+        return out
+    underground = {cid: [f"Circuit {cid!r} is underground: a cable is laid straight and has no sag."]
+                   for cid in (case.sag_m or {}) if kinds.get(cid) == "underground"}
+    if underground:
+        out["sag_m"] = underground
+    if case.earth_wire_sag_m is not None and len(case.earth_wire_sag_m) != earth_wires:
+        out["earth_wire_sag_m"] = [f"Give one sag per earth wire of the route ({earth_wires}); "
+                                   f"received {len(case.earth_wire_sag_m)}."]
+    return out
 
 
 def load_cases_field() -> fields.List:

@@ -258,7 +258,7 @@ class CrossSectionAssessmentSchema(AssessmentBaseSchema):
             return
         n = (profile_point_count(data["profile"].from_m, data["profile"].to_m, data["profile"].step_m)
              if "profile" in data else len(data.get("points", ())))
-        check_load_cases(data["load_cases"], [c.id for c in data["cross_section"].circuits], n,
+        check_load_cases(data["load_cases"], data["cross_section"].circuits, n,
                          LOAD_CASE_POINT_FACTOR * self.max_points)
 
     @validates_schema

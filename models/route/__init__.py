@@ -18,10 +18,12 @@ from .catenary import (
 )
 from .discretise import DEFAULT_TOLERANCE_M, discretise_route, segments_for_span
 from .alignment import (
+    LowestPoint,
     StrungWire,
     attachment_points_m,
     deviation_angles_deg,
     frame_at_chainage,
+    lowest_point,
     offset_vectors,
     route_centre_line,
     span_directions,
@@ -68,6 +70,8 @@ __all__ = [
     "segments_for_span",
     "span_directions",
     "strung_wires",
+    "lowest_point",
+    "LowestPoint",
     "support_chainage_m",
     "validate_route",
     "warm_up_electric",

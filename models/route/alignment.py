@@ -59,6 +59,8 @@ __all__ = [
     "attachment_points_m",
     "deviation_angles_deg",
     "frame_at_chainage",
+    "LowestPoint",
+    "lowest_point",
     "offset_vectors",
     "route_centre_line",
     "span_directions",
@@ -465,6 +467,55 @@ def _hang(route, path, wire, outer, underground, convention, envelopes) -> Strun
                     f"lowest point z = {z_low:.6g} m.",
                 )
     return StrungWire(path, off, hgt, att, spans, float(outer))
+
+
+@dataclass(frozen=True)
+class LowestPoint:
+    """Lowest phase conductor of a route: bundle-centre height above the ground plane z = 0 [m], where."""
+
+    height_m: float
+    wire: str
+    span: int
+
+
+def lowest_point(route: Route, *, convention: OffsetConvention = "perpendicular") -> LowestPoint | None:
+    """The lowest point of the overhead phase conductors over every span (the least ground clearance).
+
+    Parameters
+    ----------
+    route : Route
+        Supports in metres (a projected CRS or the working copy
+        :attr:`models.evaluation.Evaluation.route_m`: the spans' lengths are horizontal metres).
+
+    Returns
+    -------
+    LowestPoint or None
+        Height of the bundle centre at the catenary's low point (or at the lower
+        attachment when the low point lies outside the span) above z = 0, the wire's
+        input path and the span (0 = first two supports); the first such wire when
+        tied.  ``None`` when the route has no overhead circuit.  Earth wires are not
+        counted (they hang above the phases).
+
+    Examples
+    --------
+    >>> from models.geometry import Bundle
+    >>> from models.route.types import Route, RouteCircuit, RouteConductor, Support
+    >>> c = RouteCircuit("c1", "overhead", 132.0, 400.0, (RouteConductor("L1", 0, 15, 5.0),), Bundle(0.025))
+    >>> p = lowest_point(Route((Support("a", 0, 0), Support("b", 300, 0)), (c,)))
+    >>> round(p.height_m, 9), p.wire, p.span
+    (10.0, 'route.circuits[0].conductors[0]', 0)
+    """
+    wires = strung_wires(route, convention=convention)
+    overhead = {f"route.circuits[{i}]" for i, c in enumerate(route.circuits) if c.kind != "underground"}
+    best: LowestPoint | None = None
+    for w in wires:
+        if w.path.split(".conductors")[0] not in overhead:  # earth wires and underground cables
+            continue
+        for i, span in enumerate(w.spans):
+            z = float(w.attachment_m[i, 2] + span.lowest_height_m)
+            if best is None or z < best.height_m:
+                best = LowestPoint(z, w.path, i)
+    return best
 
 
 def stations(length_m: float, step_m: float) -> np.ndarray:

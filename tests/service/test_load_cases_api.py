@@ -1,5 +1,9 @@
 """Load cases in cross-section requests: what-if loading judged in one report.
 
+Routes also take sag load cases (conductor temperature): the level-span catenary
+(lowest point one sag below the attachments; common practice, any statics text) and
+consistency with a separate request built with the cool sags.
+
 References: superposition (B linear in the currents, E in the voltages) checked
 against separate requests built with the changed values; Ampère's law for one
 long straight conductor (mu0 from scipy.constants, CODATA); the OpenAPI document
@@ -8,7 +12,9 @@ for the response shape.
 
 from __future__ import annotations
 
+import json
 import math
+from pathlib import Path
 
 import pytest
 import scipy.constants
@@ -149,3 +155,129 @@ def test_route_load_case_with_unknown_circuit_is_422(app, client):
     assert r.status_code == 422
     assert "/load_cases/0/currents_a/zz" in [e["pointer"] for e in r.get_json()["errors"]]
     assert stored_count(app) == before
+
+
+# --------------------------------------------------------------------------- routes: conductor temperature and sag
+# The route as given is the maximum design temperature case (largest sag, lowest clearance); a
+# load case gives the sags of a cooler case (from the user's own sag-tension calculation).
+
+COOL = {"id": "cool", "label": "cool", "sag_m": {"c1": 1.0}, "earth_wire_sag_m": [0.5]}
+
+
+def _route_with_sag(conductor_sag_m: float, earth_wire_sag_m: float, **changes) -> dict:
+    from .test_route_api import small_route_body
+
+    body = small_route_body(**changes)
+    for k in body["route"]["circuits"][0]["conductors"]:
+        k["sag_m"] = conductor_sag_m
+    body["route"]["earth_wires"][0]["sag_m"] = earth_wire_sag_m
+    return body
+
+
+def test_cool_sag_case_equals_a_separate_request_with_the_cool_geometry(client, spec):
+    response = client.post("/v1/evaluate", json=_route_with_sag(3.0, 2.0, load_cases=[COOL]))
+    check_response(spec, response)
+    report = response.get_json()
+    hot, cool = report["load_cases"]
+    separate = client.post("/v1/evaluate", json=_route_with_sag(1.0, 0.5)).get_json()
+    # same engine on the same geometry: equal to the last bit
+    assert cool["maxima"] == separate["maxima"]
+    assert cool["receptors"] == [{k: r[k] for k in ("id", "name", "e_kv_m", "b_ut")}
+                                 for r in separate["results"]["receptors"]]
+    assert [c["exposure_index"] for c in cool["compliance"]] == [c["exposure_index"] for c in separate["compliance"]]
+    assert hot["maxima"] == report["maxima"]
+    # both cases state their sags and the lowest phase conductor: level spans 15 m high, so one sag
+    # below the attachments (catenary, level span; common practice)
+    assert hot["loading"]["sag_m"] == {"c1": 3.0} and hot["loading"]["earth_wire_sag_m"] == [2.0]
+    assert cool["loading"]["sag_m"] == {"c1": 1.0} and cool["loading"]["earth_wire_sag_m"] == [0.5]
+    assert hot["loading"]["lowest_conductor"]["height_m"] == pytest.approx(15.0 - 3.0, abs=1e-9)
+    assert cool["loading"]["lowest_conductor"]["height_m"] == pytest.approx(15.0 - 1.0, abs=1e-9)
+    # the conductors are farther from the receptors when cool: B lower at each
+    assert all(c["b_ut"] < h["b_ut"] for c, h in zip(cool["receptors"], hot["receptors"]))
+
+
+def test_hot_case_governs_b_and_its_failure_is_named(client):
+    # B at h1 (100 m along the first span, 30 m aside) is larger hot than cool; a custom limit between
+    # the two cases fails the base (hot) case only.
+    body = _route_with_sag(3.0, 2.0, load_cases=[COOL])
+    first = client.post("/v1/evaluate", json=body).get_json()
+    hot_b, cool_b = (c["maxima"]["b"]["value_ut"] for c in first["load_cases"])
+    assert cool_b < hot_b
+    body["custom_limits"] = [{"id": "plan", "quantity": "B", "value": (hot_b + cool_b) / 2, "unit": "µT"}]
+    report = client.post("/v1/evaluate", json=body).get_json()
+    summary = report["load_case_summary"]
+    assert report["outcome"] == "fail" and summary["failing_cases"] == ["base"]
+    plan = next(g for g in summary["governing"] if g["level_id"] == "plan")
+    assert plan["case_id"] == "base" and plan["passes"] is False
+    assert [c["outcome"] for c in report["load_cases"]] == ["fail", "pass"]
+
+
+def test_sag_case_is_stored_retrievable_and_verifies(client):
+    created = client.post("/v1/assessments", json=_route_with_sag(3.0, 2.0, load_cases=[COOL]))
+    assert created.status_code == 201, created.get_data(as_text=True)
+    stored = created.get_json()
+    assert stored["input"]["load_cases"] == [{**COOL, "current_scale": 1.0, "sag_m": {"c1": 1.0}}]
+    fetched = client.get(created.headers["Location"]).get_json()
+    assert fetched["load_cases"] == stored["load_cases"]
+    assert client.post(created.headers["Location"] + "/verify").get_json()["verdict"] == "match"
+    html = client.get(created.headers["Location"] + "/report?format=html").get_data(as_text=True)
+    assert "Lowest conductor (m)" in html
+
+
+def test_loading_without_sag_cases_has_no_sag_members(client):
+    report = client.post("/v1/evaluate", json=_route_with_sag(3.0, 2.0, load_cases=[
+        {"id": "peak", "current_scale": 2}])).get_json()
+    assert set(report["load_cases"][1]["loading"]) == {"current_scale", "currents_a", "voltages_kv"}
+
+
+@pytest.mark.parametrize("case, pointer", [
+    ({"id": "x", "sag_m": {"zz": 1}}, "/load_cases/0/sag_m/zz"),
+    ({"id": "x", "sag_m": {"c1": -1}}, "/load_cases/0/sag_m/c1/value"),
+    ({"id": "x", "sag_m": {"c1": "2"}}, "/load_cases/0/sag_m/c1/value"),
+    ({"id": "x", "sag_m": {"c1": 16}}, "/load_cases/0/sag_m/c1"),          # below the ground in span 0
+    ({"id": "x", "sag_m": {}}, "/load_cases/0/sag_m"),
+    ({"id": "x", "earth_wire_sag_m": [1, 2]}, "/load_cases/0/earth_wire_sag_m"),
+    ({"id": "x", "earth_wire_sag_m": [25]}, "/load_cases/0/earth_wire_sag_m/0"),
+])
+def test_bad_route_sag_cases_are_422_naming_the_field_and_store_nothing(app, client, case, pointer):
+    before = stored_count(app)
+    r = client.post("/v1/assessments", json=_route_with_sag(3.0, 2.0, load_cases=[case]))
+    assert r.status_code == 422 and r.mimetype == PROBLEM, r.get_data(as_text=True)
+    assert pointer in [e["pointer"] for e in r.get_json()["errors"]], r.get_json()["errors"]
+    assert stored_count(app) == before
+
+
+def test_underground_circuit_sag_case_is_422(client):
+    body = _route_with_sag(3.0, 2.0, load_cases=[{"id": "x", "sag_m": {"u1": 0.5}}])
+    body["route"]["circuits"].append({"id": "u1", "kind": "underground", "voltage_kv": 132, "current_a": 300,
+                                      "conductors": [{"phase": p, "offset_m": 12 + o, "height_m": -1.2}
+                                                     for p, o in (("L1", -0.3), ("L2", 0.0), ("L3", 0.3))],
+                                      "bundle": {"subconductor_diameter_m": 0.05}})
+    r = client.post("/v1/evaluate", json=body)
+    assert r.status_code == 422
+    assert "/load_cases/0/sag_m/u1" in [e["pointer"] for e in r.get_json()["errors"]]
+
+
+@pytest.mark.parametrize("member", [{"sag_m": {"c1": 1.0}}, {"earth_wire_sag_m": [1.0]}])
+def test_cross_section_sag_case_is_422_naming_the_member(app, client, member):
+    before = stored_count(app)
+    r = client.post("/v1/assessments", json=with_cases([{"id": "cool", **member}]))
+    assert r.status_code == 422
+    errors = r.get_json()["errors"]
+    name = next(iter(member))
+    assert any(e["pointer"] == f"/load_cases/0/{name}" and "no spans" in e["detail"] for e in errors), errors
+    assert stored_count(app) == before
+
+
+def test_the_documented_sag_example_gives_what_the_docs_say(client):
+    # docs/routes.md: lowest conductor 10.5 m hot and 12.8 m cool (18 m attachments, level spans,
+    # sags 7.5 m and 5.2 m); the hot (base) case governs both thresholds.
+    root = Path(__file__).resolve().parents[2]
+    body = json.loads((root / "docs" / "examples" / "route_sag_cases.json").read_text(encoding="utf-8"))
+    report = client.post("/v1/evaluate", json=body).get_json()
+    hot, cool = report["load_cases"]
+    assert hot["loading"]["lowest_conductor"]["height_m"] == pytest.approx(18.0 - 7.5, abs=1e-9)
+    assert cool["loading"]["lowest_conductor"]["height_m"] == pytest.approx(18.0 - 5.2, abs=1e-9)
+    assert {g["case_id"] for g in report["load_case_summary"]["governing"]} == {"base"}
+    text = (root / "docs" / "routes.md").read_text(encoding="utf-8")
+    assert '"lowest_conductor": {"height_m": 10.5' in text and "12.8 m" in text
