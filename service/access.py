@@ -161,6 +161,10 @@ def authenticate(session: Session, token: str) -> Caller | None:
     return Caller(row.key_id, row.tenant, row.role)
 
 
+def _session() -> Session:
+    return storage_of(current_app).sessionmaker()
+
+
 def _challenge(detail: str, error: str | None = None) -> ProblemError:
     value = f'Bearer realm="{REALM}"' + (f', error="{error}"' if error else "")
     return ProblemError(401, detail, type_=UNAUTHORIZED, title="Unauthorized", headers=[("WWW-Authenticate", value)])
@@ -176,12 +180,8 @@ def _require_key() -> None:
         raise _challenge("This request needs an API key: send Authorization: Bearer <key>.")
     if scheme.lower() != "bearer" or not token.strip():
         raise _challenge("The Authorization header must read 'Bearer <key>'.", "invalid_request")
-    session = storage_of(current_app).sessionmaker()
-    try:
-        with session.begin():
-            caller = authenticate(session, token.strip())
-    finally:
-        session.close()
+    with _session() as session, session.begin():  # its own short transaction, before the view's
+        caller = authenticate(session, token.strip())
     if caller is None:
         raise _challenge("The API key is not valid (unknown, revoked or malformed).", "invalid_token")
     if request.endpoint in SUBMIT_ENDPOINTS and caller.role != "submit":
@@ -199,10 +199,6 @@ def current_tenant() -> str | None:
 # --------------------------------------------------------------------------- command line
 
 keys_cli = AppGroup("keys", help="Create, revoke and list API keys.")
-
-
-def _session() -> Session:
-    return storage_of(current_app).sessionmaker()
 
 
 @keys_cli.command("create")
